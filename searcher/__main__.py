@@ -1,0 +1,5 @@
+import sys
+
+from searcher.cli import main
+
+sys.exit(main())

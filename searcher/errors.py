@@ -1,0 +1,51 @@
+"""User-facing errors shared by every layer.
+
+A :class:`UserError` is a problem with what the user gave us (a study file, a data file, a
+storage URL).  The CLI prints it without a traceback and exits with code 2.  Every layer
+raises it with as much location as it knows: file, line, column, dotted key path, the rule
+and the value received.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+__all__ = ["Problem", "UserError"]
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One located problem.  ``line``/``column`` are 1-based; 0 means unknown."""
+
+    message: str
+    file: str = ""
+    line: int = 0
+    column: int = 0
+    path: str = ""
+
+    def render(self) -> str:
+        where = self.file or "<input>"
+        if self.line:
+            where += f":{self.line}"
+            if self.column:
+                where += f":{self.column}"
+        key = f" [{self.path}]" if self.path else ""
+        return f"{where}:{key} {self.message}"
+
+    def to_dict(self) -> dict:
+        return {"file": self.file, "line": self.line, "column": self.column,
+                "path": self.path, "message": self.message}
+
+
+@dataclass
+class UserError(Exception):
+    """One or more problems with user input (exit code 2, no traceback)."""
+
+    problems: list[Problem] = field(default_factory=list)
+
+    @classmethod
+    def single(cls, message: str, *, file: str = "", line: int = 0, column: int = 0,
+               path: str = "") -> "UserError":
+        return cls([Problem(message, file=str(file), line=line, column=column, path=path)])
+
+    def __str__(self) -> str:
+        return "\n".join(p.render() for p in self.problems)
