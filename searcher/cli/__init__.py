@@ -15,7 +15,7 @@ from searcher.errors import UserError
 __all__ = ["main"]
 
 # Order = order in ``searcher --help``.
-COMMANDS = ()
+COMMANDS = ("check", "schema", "data", "dossier")
 
 EPILOG = """examples:
   searcher demo --quick                 run the whole job on the embedded demo

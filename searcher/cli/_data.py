@@ -1,0 +1,98 @@
+"""``searcher data``: look at a dataset, or write the demo scenario as NPZ files."""
+from __future__ import annotations
+
+import argparse
+import copy
+import importlib.resources
+import json
+import warnings
+
+import yaml
+
+__all__ = ["register"]
+
+EXPORT_HELP = """Writes one NPZ file per graph, graph_0000.npz, ... in DIR:
+  pos                 [N, 3] probe positions (world frame, not centred)
+  velocity            [N, 3]     vector
+  pressure            [N]        scalar
+  pressure_gradient   [N, 3]     vector
+  anisotropy          [N, 3, 3]  traceless symmetric tensor (the target)
+  header              JSON string: field name -> {kind, role, level}
+The reader also accepts [N, 2] positions/vectors (2D, z = 0), [N, 9] / [N, 6] tensors and
+an optional edge_index [2, E] (row 0 source, row 1 destination), used with task.mesh_edges.
+"""
+
+
+def register(subparsers) -> None:
+    parser = subparsers.add_parser("data", help="inspect a dataset or export the demo flows",
+                                   description="Inspect a dataset or export the demo flows.")
+    sub = parser.add_subparsers(dest="data_command", metavar="ACTION", required=True)
+    ins = sub.add_parser("inspect", help="fields, kinds, irreps, graph stats and split sizes")
+    ins.add_argument("source", help="'demo', a data file (.npz/.vtu/.vtp/.vtk) or a folder")
+    ins.add_argument("--study", help="study YAML whose task section (graph rule, fields, "
+                     "splits) applies")
+    ins.add_argument("--json", action="store_true", help="print one JSON object")
+    ins.set_defaults(handler=_inspect)
+    exp = sub.add_parser("export", help="write demo graphs as NPZ files", epilog=EXPORT_HELP,
+                         formatter_class=argparse.RawDescriptionHelpFormatter)
+    exp.add_argument("source", choices=["demo"], help="only the demo scenario can be exported")
+    exp.add_argument("--graphs", type=int, default=8, help="number of flow samples (default 8)")
+    exp.add_argument("--seed", type=int, default=0, help="generator seed (default 0)")
+    exp.add_argument("--study", help="study YAML whose task.demo settings apply")
+    exp.add_argument("--out", required=True, help="output folder")
+    exp.set_defaults(handler=_export)
+
+
+def _task(args) -> dict:
+    if args.study:
+        from searcher.spec import load_study
+
+        task = copy.deepcopy(load_study(args.study).fixed()["task"])
+    else:
+        text = importlib.resources.files("searcher.spec").joinpath("defaults.yaml").read_text()
+        task = yaml.safe_load(text)["task"]
+    task["source"] = args.source
+    return task
+
+
+def _inspect(args) -> int:
+    from searcher.data import build_dataset
+
+    task = _task(args)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        ds = build_dataset(task)
+    report = {"source": args.source, "hash": ds.hash,
+              "fields": [f.to_dict() for f in ds.fields.values()], "stats": ds.stats,
+              "warnings": sorted({str(w.message) for w in caught if "searcher" in w.filename})}
+    if args.json:
+        print(json.dumps(report, indent=2))
+        return 0
+    print(f"source  {args.source}   data hash {ds.hash[:12]}")
+    print(f"{'field':<22}{'kind':<28}{'irreps':<10}{'role':<8}level")
+    for f in ds.fields.values():
+        print(f"{f.name:<22}{f.kind:<28}{f.irreps:<10}{f.role:<8}{f.level}")
+    s, g = ds.stats, ds.stats["graphs"]
+    print(f"samples {s['samples']}  graphs {g['graphs']}  nodes/graph {g['nodes_mean']:.1f} "
+          f"[{g['nodes_min']}, {g['nodes_max']}]  edges/graph {g['edges_mean']:.1f} "
+          f"[{g['edges_min']}, {g['edges_max']}]")
+    print(f"degree mean {g['degree_mean']:.2f}, max {g['degree_max']}; isolated nodes "
+          f"{g['isolated_nodes']}; edges dropped by cap {s['edges_dropped']}")
+    print("split   " + "  ".join(f"{k} {v}" for k, v in s["split"].items()))
+    print("stress  " + ("  ".join(f"{k} {v}" for k, v in s["stress"].items()) or "none"))
+    for line in s["stress_notes"] + report["warnings"]:
+        print(f"note    {line}")
+    return 0
+
+
+def _export(args) -> int:
+    from searcher.data import demo_samples, describe_fields, write_npz
+    from searcher.errors import UserError
+
+    if args.graphs < 1:
+        raise UserError.single(f"--graphs must be at least 1; got {args.graphs}", path="--graphs")
+    task = _task(args)
+    task["demo"].update(samples=args.graphs, seed=args.seed)
+    paths = write_npz(args.out, demo_samples(task["demo"]), describe_fields(task))
+    print(f"wrote {len(paths)} files to {args.out}")
+    return 0

@@ -1,0 +1,181 @@
+"""``build_dataset``: samples → graphs, splits, stress sets, normaliser, hash, on-disk cache.
+
+Functions take the ``task`` section of a resolved config (a plain dict with the keys of
+``searcher/spec/defaults.yaml``).  The data hash covers the keys that shape the data (the
+``fidelity`` subsection is left out: trials subsample at training time), the generator
+version and, for file sources, the bytes of every file; equal hashes mean comparable data.
+The cache is one NPZ file ``<cache_dir>/data-<hash>.npz`` holding every graph's arrays plus
+a JSON record of splits, normaliser, stats and fields.
+"""
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from searcher.data._demo import DEMO_FIELDS, Sample, demo_samples
+from searcher.data._files import data_files, declared_fields, read_samples
+from searcher.data._graphs import build_edges, graph_stats, to_data
+from searcher.data._kinds import Field
+from searcher.data._normaliser import Normaliser
+from searcher.data._splits import split_samples, stress_sets
+from searcher.errors import UserError
+
+__all__ = ["Dataset", "GENERATOR_VERSION", "build_dataset", "data_hash", "describe_fields"]
+
+# Bump whenever generated values or stored layout change, so old caches are not reused.
+GENERATOR_VERSION = "flows-1"
+
+
+def describe_fields(task_cfg: dict) -> dict[str, Field]:
+    """Fields of the task without generating data (file sources read at most one header)."""
+    if task_cfg["source"] == "demo":
+        return {f.name: f for f in DEMO_FIELDS}
+    return declared_fields(task_cfg)
+
+
+def data_hash(task_cfg: dict) -> str:
+    """sha256 of what shapes the data: see the module docstring."""
+    keep = {k: v for k, v in task_cfg.items() if k != "fidelity"}
+    if task_cfg["source"] == "demo":
+        keep.pop("fields", None)
+        keep.pop("mesh_edges", None)
+        files = []
+    else:
+        keep.pop("demo", None)
+        keep["source"] = ""   # the same files moved elsewhere are the same data
+        files = [hashlib.sha256(p.read_bytes()).hexdigest() for p in data_files(task_cfg["source"])]
+    text = json.dumps({"version": GENERATOR_VERSION, "task": keep, "files": files},
+                      sort_keys=True, default=str)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+@dataclass
+class Dataset:
+    """Graphs ready for training; see DEVELOPERS.md "Contracts/data".
+
+    Attributes:
+        fields: name → Field. ``inputs``: input fields; ``target``: the target field.
+        graphs: ``torch_geometric.data.Data`` of every non-held-out sample, normalised.
+        split: ``{"train", "val", "test"}`` → indices into ``graphs``.
+        stress: stress-set name → list of Data (built from test samples / held-out families).
+        normaliser: fitted on the train split.  hash: the data hash.  stats: counts.
+    """
+
+    fields: dict[str, Field]
+    graphs: list
+    split: dict[str, list[int]]
+    stress: dict[str, list]
+    normaliser: Normaliser
+    hash: str
+    stats: dict
+
+    @property
+    def inputs(self) -> list[Field]:
+        return [f for f in self.fields.values() if f.role == "input"]
+
+    @property
+    def target(self) -> Field:
+        return next(f for f in self.fields.values() if f.role == "target")
+
+
+def _to_graph(task_cfg: dict, s: Sample, norm: Normaliser, counters: dict):
+    graph = task_cfg["graph"]
+    if task_cfg.get("mesh_edges") and s.edge_index is not None:
+        edges = s.edge_index
+    else:
+        edges, dropped = build_edges(s.pos, graph["rule"], graph["radius"], graph["neighbours"],
+                                     int(graph["edge_cap"]))
+        counters["edges_dropped"] += dropped
+    if edges.shape[1] == 0:
+        where = s.source if s.source != "demo" else f"demo sample {s.sample} ({s.family})"
+        raise UserError.single(f"graph of {where} has no edges at the chosen rule (rule={graph['rule']}, "
+                               f"radius={graph['radius']}, neighbours={graph['neighbours']}); "
+                               "raise task.graph.radius", file=s.source if s.source != "demo" else "",
+                               path="task.graph.radius")
+    counters["realizability_scaled"] += int(s.info.get("realizability_scaled", 0))
+    values = {k: norm.apply(k, v) for k, v in s.fields.items()}
+    return to_data(s.pos, edges, values, s.family, s.sample)
+
+
+def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
+    if task_cfg["source"] == "demo":
+        samples = demo_samples(task_cfg["demo"])
+    else:
+        samples = read_samples(task_cfg, fields)
+    hold = set(task_cfg["split"]["hold_out"])
+    kept = [s for s in samples if s.family not in hold]
+    held = [s for s in samples if s.family in hold]
+    if len(kept) < 3:
+        raise UserError.single(f"only {len(kept)} samples remain after hold_out (rule: at least "
+                               "3, one each for train, val and test)", path="task.split.hold_out")
+    split = split_samples(list(range(len(kept))), task_cfg["split"]["fractions"],
+                          task_cfg["split"]["seed"])
+    norm = Normaliser.fit({k: f.irreps for k, f in fields.items()},
+                          {k: [kept[i].fields[k] for i in split["train"]] for k in fields})
+    stress_samples, notes = stress_sets(task_cfg, fields, [kept[i] for i in split["test"]], held)
+    counters = {"edges_dropped": 0, "realizability_scaled": 0}
+    graphs = [_to_graph(task_cfg, s, norm, counters) for s in kept]
+    stress = {k: [_to_graph(task_cfg, s, norm, counters) for s in v]
+              for k, v in stress_samples.items()}
+    stats = {"samples": len(samples), "graphs": graph_stats(graphs),
+             "split": {k: len(v) for k, v in split.items()},
+             "stress": {k: len(v) for k, v in stress.items()}, "stress_notes": notes,
+             "families": sorted({s.family for s in kept}), "held_out": sorted({s.family for s in held}),
+             **counters}
+    return Dataset(fields, graphs, split, stress, norm, digest, stats)
+
+
+def build_dataset(task_cfg: dict, cache_dir=None) -> Dataset:
+    """Build (or load from ``cache_dir``) the dataset of a ``task`` section.
+
+    Args:
+        task_cfg: the resolved ``task`` mapping.
+        cache_dir: folder for ``data-<hash>.npz``; None = no cache.
+    """
+    fields = describe_fields(task_cfg)
+    digest = data_hash(task_cfg)
+    path = Path(cache_dir) / f"data-{digest}.npz" if cache_dir else None
+    if path is not None and path.exists():
+        return _load_cache(path, fields, digest)
+    ds = _build(task_cfg, fields, digest)
+    if path is not None:
+        _save_cache(path, ds)
+    return ds
+
+
+_ATTRS = ("pos", "edge_index", "edge_vec", "edge_len")
+
+
+def _save_cache(path: Path, ds: Dataset) -> None:
+    sets = {"graphs": ds.graphs, **{f"stress.{k}": v for k, v in ds.stress.items()}}
+    arrays, labels = {}, {}
+    for name, graphs in sets.items():
+        labels[name] = [[g.family, g.sample] for g in graphs]
+        for i, g in enumerate(graphs):
+            for attr in _ATTRS + tuple(ds.fields):
+                arrays[f"{name}|{i}|{attr}"] = getattr(g, attr).numpy()
+    meta = {"split": ds.split, "normaliser": ds.normaliser.to_dict(), "stats": ds.stats,
+            "fields": {k: f.to_dict() for k, f in ds.fields.items()}, "labels": labels}
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_name(path.name + ".part.npz")   # atomic: readers never see half a file
+    np.savez(tmp, meta=np.array(json.dumps(meta)), **arrays)
+    tmp.replace(path)
+
+
+def _load_cache(path: Path, fields: dict[str, Field], digest: str) -> Dataset:
+    import torch
+    from torch_geometric.data import Data
+
+    with np.load(path, allow_pickle=False) as z:
+        meta = json.loads(str(z["meta"]))
+        sets = {}
+        for name, labels in meta["labels"].items():
+            sets[name] = [Data(**{a: torch.as_tensor(z[f"{name}|{i}|{a}"]) for a in _ATTRS + tuple(fields)},
+                               family=fam, sample=int(num)) for i, (fam, num) in enumerate(labels)]
+    stress = {k.split(".", 1)[1]: v for k, v in sets.items() if k.startswith("stress.")}
+    return Dataset(fields, sets["graphs"], meta["split"], stress,
+                   Normaliser.from_dict(meta["normaliser"]), digest, meta["stats"])

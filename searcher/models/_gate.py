@@ -1,0 +1,147 @@
+"""The equivariance gate: every candidate is measured before it trains.
+
+The tested function takes positions and input fields, rebuilds the radius graph and every
+attribute from them, and runs the model; e3nn's ``equivariance_error`` then compares
+``f(g·x)`` with ``g·f(x)`` for random rotations, reflections and translations.  A second,
+independent check uses scipy's random rotations with ``Irreps.D_from_matrix``.
+"""
+from __future__ import annotations
+
+import contextlib
+import copy
+import math
+from dataclasses import asdict, dataclass
+
+import numpy as np
+import torch
+from e3nn import o3
+from e3nn.util.test import equivariance_error
+from scipy.spatial.transform import Rotation
+
+from ._build import build_model
+from ._probe import graph_from, random_graph
+
+__all__ = ["GateResult", "run_gate", "gate_model", "gate_function", "default_dtype"]
+
+GATE_NODES = 12
+
+
+@contextlib.contextmanager
+def default_dtype(dtype: torch.dtype):
+    # e3nn computes Wigner D matrices (and its tensor-product constants) in the default
+    # dtype, so a float64 check needs float64 as the default, not only float64 tensors.
+    old = torch.get_default_dtype()
+    torch.set_default_dtype(dtype)
+    try:
+        yield
+    finally:
+        torch.set_default_dtype(old)
+
+
+@dataclass
+class GateResult:
+    """Outcome of the gate.  Errors are the largest absolute componentwise difference."""
+
+    params: int
+    equivariance_error: float      # e3nn equivariance_error, float64
+    equivariance_error_f32: float  # the same in float32 (informative only)
+    second_check_error: float      # scipy rotation + reflection, float64
+    passed: bool
+    reason: str
+    equivariant: bool              # False for the baselines (measured, never rejected)
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+def gate_function(model: torch.nn.Module, fields: dict, radius: float):
+    """``(f, names, irreps_in, irreps_out)`` of the tested function.
+
+    ``f(pos, *inputs)`` rebuilds the graph from ``pos`` and runs the model; ``inputs`` are
+    every input field (``names``, in ``fields`` order; the model reads those it uses);
+    ``irreps_in`` starts with ``"cartesian_points"`` for the positions.
+    """
+    names = [f.name for f in fields.values() if f.role == "input"]
+
+    def f(pos: torch.Tensor, *inputs: torch.Tensor) -> torch.Tensor:
+        return model(graph_from(pos, dict(zip(names, inputs)), radius))
+
+    irreps_in = ["cartesian_points"] + [o3.Irreps(fields[n].irreps) for n in names]
+    return f, names, irreps_in, model.irreps_out
+
+
+def _e3nn_error(model, fields, graph, radius) -> float:
+    f, names, irreps_in, irreps_out = gate_function(model, fields, radius)
+    dtype = next(model.parameters()).dtype
+    args = [graph.pos.to(dtype)] + [getattr(graph, n).to(dtype) for n in names]
+    with torch.no_grad():
+        errors = equivariance_error(f, args, irreps_in=irreps_in, irreps_out=[irreps_out],
+                                    do_parity=True, do_translation=True)
+    return max(float(v.max()) for v in errors.values())
+
+
+def _scipy_error(model, fields, graph, radius, seed: int) -> float:
+    f, names, irreps_in, irreps_out = gate_function(model, fields, radius)
+    args = [graph.pos] + [getattr(graph, n) for n in names]
+    rot = torch.as_tensor(Rotation.random(random_state=seed).as_matrix(), dtype=torch.float64)
+    shift = torch.as_tensor(np.random.default_rng(seed).normal(size=(1, 3)) * 3.0)
+    worst = 0.0
+    with torch.no_grad():
+        base = f(*args)
+        for g in (rot, -rot):  # a proper rotation, then the same composed with inversion
+            moved = [args[0] @ g.T + shift] + [x @ ir.D_from_matrix(g).T
+                                                for x, ir in zip(args[1:], irreps_in[1:])]
+            expect = base @ irreps_out.D_from_matrix(g).T
+            worst = max(worst, float((f(*moved) - expect).abs().max()))
+    return worst
+
+
+def gate_model(model: torch.nn.Module, fields: dict, *, seed: int = 0,
+               tol: float = 1e-9) -> GateResult:
+    """Gate an already built model (it is copied, never changed).
+
+    Args:
+        model: a model from :func:`build_model` (or anything with ``irreps_out``,
+            ``equivariant`` and ``forward(data)``).
+        fields: field name → Field, as given to the model.
+        seed: seed of the probe graph, its inputs and the rotations.
+        tol: largest float64 error an equivariant model may show.
+    """
+    geometry = getattr(model, "geometry", None)
+    cutoff = geometry.radial.cutoff if geometry is not None else 1.0
+    # Every edge inside the radial cutoff, so the radial features take part.
+    graph = random_graph(fields, GATE_NODES, seed, radius=0.9 * cutoff, dtype=torch.float64)
+    m64 = copy.deepcopy(model).to(torch.float64)
+    m32 = copy.deepcopy(model).to(torch.float32)
+    with torch.random.fork_rng(devices=[]):
+        torch.manual_seed(seed)  # e3nn draws its random transforms from torch's RNG
+        with default_dtype(torch.float64):
+            err64 = _e3nn_error(m64, fields, graph, graph.graph_radius)
+            second = _scipy_error(m64, fields, graph, graph.graph_radius, seed)
+        with default_dtype(torch.float32):
+            err32 = _e3nn_error(m32, fields, graph, graph.graph_radius)
+    params = sum(p.numel() for p in model.parameters())
+    equivariant = bool(getattr(model, "equivariant", True))
+    worst = max(err64, second)
+    if not equivariant:
+        return GateResult(params, err64, err32, second, True,
+                          f"baseline: not equivariant by design (error {worst:.3g})", False)
+    if math.isnan(worst) or worst > tol:
+        return GateResult(params, err64, err32, second, False,
+                          f"equivariance error {worst:.3g} exceeds the tolerance {tol:g} "
+                          f"(float64)", True)
+    return GateResult(params, err64, err32, second, True, "", True)
+
+
+def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
+             tol: float = 1e-9) -> GateResult:
+    """Build the model of ``model_cfg`` (seeded) and gate it; see :func:`gate_model`.
+
+    Example:
+        >>> run_gate(cfg["model"], fields, "anisotropy").passed  # doctest: +SKIP
+        True
+    """
+    with torch.random.fork_rng(devices=[]), default_dtype(torch.float64):
+        torch.manual_seed(seed)
+        model = build_model(model_cfg, fields, target)
+    return gate_model(model, fields, seed=seed, tol=tol)

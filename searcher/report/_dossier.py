@@ -1,0 +1,152 @@
+"""``make_dossier``: choose finalists, re-train them over seeds, weigh the evidence, write it.
+
+Output folder (default ``<output>/dossier``): ``dossier.html`` (self-contained),
+``dossier.md``, ``dossier.json``, ``plots/*.png``, and the choice as ``choice.yaml`` +
+``choice.pt`` (+ ``choice-normaliser.json``), reloadable with ``searcher.load_model``.
+"""
+from __future__ import annotations
+
+import copy
+import math
+import tempfile
+from pathlib import Path
+
+__all__ = ["QUICK", "dossier_settings", "make_dossier"]
+
+# --quick: enough to rehearse the whole dossier on the demo within its budget.
+QUICK = {"finalists": 2, "seeds": 2, "epoch_factor": 1}
+DEFAULT = {"finalists": 3, "seeds": 3, "epoch_factor": 2}
+CONFIDENCE = 0.95
+
+
+def dossier_settings(study, *, finalists: int | None = None, seeds: int | None = None,
+                     epochs: int | None = None, quick: bool = False) -> dict:
+    """Resolved dossier settings; explicit values win over ``quick`` and the defaults.
+
+    Raises:
+        UserError: a count below 1.
+    """
+    from searcher.errors import UserError
+
+    base = QUICK if quick else DEFAULT
+    study_epochs = int(study.fixed()["training"]["epochs"])
+    out = {"finalists": base["finalists"] if finalists is None else int(finalists),
+           "seeds": base["seeds"] if seeds is None else int(seeds),
+           "epochs": base["epoch_factor"] * study_epochs if epochs is None else int(epochs),
+           "quick": bool(quick), "confidence": CONFIDENCE}
+    for key in ("finalists", "seeds", "epochs"):
+        if out[key] < 1:
+            raise UserError.single(f"--{key} must be at least 1, but got {out[key]}",
+                                   path=f"dossier.{key}")
+    return out
+
+
+def _exported_config(config: dict, *, seed: int, epochs: int) -> dict:
+    """The configuration the exported weights were trained with (full fidelity)."""
+    cfg = copy.deepcopy(config)
+    cfg["training"].update(seed=seed, epochs=epochs, device="auto")
+    cfg["task"]["fidelity"] = {"train_fraction": 1.0, "probes": 0}
+    return cfg
+
+
+def make_dossier(study, *, finalists: int | None = None, seeds: int | None = None,
+                 epochs: int | None = None, out: Path | str | None = None, quick: bool = False,
+                 storage: str | None = None, progress=None) -> dict:
+    """Build the evidence dossier of a finished study.
+
+    Args:
+        study: the :class:`searcher.spec.Study`.
+        finalists: finalists to re-train (default 3; 2 with ``quick``).
+        seeds: seeds per finalist (default 3; 2 with ``quick``).
+        epochs: epochs per re-run (default twice the study's; the study's with ``quick``).
+        out: dossier folder (default ``<output>/dossier``).
+        quick: reduced settings for the demo.
+        storage: Optuna storage URL overriding the study's (as for ``searcher run``).
+        progress: optional ``callable(str)`` told about each re-run.
+
+    Returns:
+        The dossier content (what ``dossier.json`` holds).
+
+    Raises:
+        UserError: no measured trial in the store, or bad settings.
+    """
+    from searcher.analysis import analyze, read_trials
+    from searcher.report._content import assemble
+    from searcher.report._export import export_choice
+    from searcher.report._finalists import choose_finalists
+    from searcher.report._provenance import now_utc, provenance
+    from searcher.report._rerun import retrain
+    from searcher.report._tracking import DossierTracker
+    from searcher.report._writers import FILES, plot_files, write_dossier
+    from searcher.search import open_store, public_config, tracking_uri
+    from searcher.train import pick_device
+
+    started = now_utc()
+    settings = dossier_settings(study, finalists=finalists, seeds=seeds, epochs=epochs,
+                                quick=quick)
+    folder = Path(out) if out else Path(study.output_dir) / "dossier"
+    folder.mkdir(parents=True, exist_ok=True)
+    fixed = study.fixed()
+    store = open_store(study, storage)
+    with tempfile.TemporaryDirectory() as scratch:  # analysis' own files are not ours to keep
+        analysis = analyze(study, store, scratch)
+    candidates, notes = choose_finalists(study, read_trials(store), analysis,
+                                         settings["finalists"])
+    tracker = DossierTracker(study, tracking_uri(fixed["tracking"]["uri"], study.output_dir))
+    notes += [tracker.note] if tracker.note else []
+    seed_list = [int(fixed["training"]["seed"]) + i for i in range(settings["seeds"])]
+    settings["seed_list"] = seed_list
+    settings["device"] = str(pick_device({"device": "auto"}))
+    records, keep, data_hash = [], {}, ""
+    for cand in candidates:
+        fin = {"label": cand.label, "role": cand.role, "origin": cand.origin,
+               "trial": cand.trial, "search_value": cand.search_value,
+               "config": public_config(cand.config), "seeds": []}
+        for seed in seed_list:
+            rec, model, dataset = retrain(study, cand.config, seed=seed,
+                                          epochs=settings["epochs"])
+            fin["cost"] = rec.pop("cost")
+            fin["equivariant"] = bool(getattr(model, "equivariant", True))
+            rec["mlflow_run_id"] = tracker.record(cand.label, cand.config, rec)
+            fin["seeds"].append(rec)
+            data_hash = dataset.hash
+            best = keep.get(cand.label)
+            if math.isfinite(rec["best_value"]) and (best is None
+                                                      or rec["best_value"] < best[0]):
+                # The exported weights: the seed with the best validation loss (never test).
+                keep[cand.label] = (rec["best_value"], seed,
+                                    {k: v.detach().cpu().clone()
+                                     for k, v in model.state_dict().items()},
+                                    dataset.normaliser.to_dict())
+            if progress:
+                progress(f"{cand.label} seed {seed}: {rec['status']}, test error "
+                         f"{rec['error']:.4g}, {rec['cpu_seconds']:.1f} CPU-s")
+        records.append(fin)
+    files = {**FILES, "plots": plot_files()}
+    summary = fixed["study"]
+    content = assemble(
+        study={"name": study.name, "summary": summary["summary"], "team": summary["team"],
+               "path": str(study.path), "hash": study.hash},
+        settings=settings, finalists=records, files=files, warnings=notes,
+        provenance=provenance(study_path=study.path, study_hash=study.hash,
+                              data_hash=data_hash, started=started,
+                              device=settings["device"]))
+    label = content["pick"]["label"]
+    chosen = next(c for c in candidates if c.label == label)
+    if label in keep:
+        _, seed, state, normaliser = keep[label]
+        export_choice(folder, _exported_config(chosen.config, seed=seed,
+                                               epochs=settings["epochs"]), state,
+                      name=f"{study.name}-choice",
+                      summary=f"Dossier choice {label} of study {study.name} (seed {seed})",
+                      normaliser=normaliser, yaml_name=files["config"],
+                      weights_name=files["weights"])
+        content["pick"]["seed"] = seed
+    else:
+        for key in ("config", "weights", "normaliser"):
+            files.pop(key)
+        content["cautions"].append(f"{label} has no finite validation loss: no model exported.")
+    content["provenance"]["finished"] = now_utc()
+    write_dossier(content, folder)
+    content["folder"] = str(folder)
+    return content

@@ -1,0 +1,123 @@
+"""The pick: one stated decision, its reasons in plain words, and what would overturn it.
+
+Rule (ours): among finalists that completed and, if equivariant, passed the gate, order by
+mean test error.  The front two meet head to head (P(A>B) over paired seeds).  A clear win
+(Bouthillier et al. 2021 criterion) picks the winner; otherwise the evidence does not separate
+them and the smaller model (fewer parameters) is taken.  The control never wins the pick — it
+is there to show whether equivariance earns its cost.
+"""
+from __future__ import annotations
+
+import math
+
+from searcher.report._sections import fmt
+from searcher.report._stats import Outperform, p_outperform
+
+__all__ = ["decide", "paired_errors"]
+
+
+def paired_errors(a: dict, b: dict) -> tuple[list[float], list[float]]:
+    """Test errors of two finalists on the seeds both ran, in seed order."""
+    ea = {s["seed"]: s["error"] for s in a["seeds"]}
+    eb = {s["seed"]: s["error"] for s in b["seeds"]}
+    common = sorted(set(ea) & set(eb))
+    return [ea[s] for s in common], [eb[s] for s in common]
+
+
+def _usable(fin: dict) -> bool:
+    done = [s for s in fin["seeds"] if s["status"] == "completed" and math.isfinite(s["error"])]
+    gate_ok = not fin["equivariant"] or all(s["gate_passed"] for s in fin["seeds"])
+    return bool(done) and gate_ok
+
+
+def _worst_stress(fin: dict) -> tuple[str, float]:
+    ratios = {n: v["ratio"]["mean"] for n, v in fin["stress"].items()
+              if math.isfinite(v["ratio"]["mean"])}
+    if not ratios:
+        return "", math.nan
+    name = max(ratios, key=ratios.get)
+    return name, ratios[name]
+
+
+def decide(finalists: list[dict], *, seed: int = 0) -> tuple[dict, Outperform | None]:
+    """Choose among the re-trained finalists.
+
+    Args:
+        finalists: finalist content dicts (label, role, equivariant, seeds, metrics, stress,
+            cost).
+        seed: seeds the bootstrap of P(A>B).
+
+    Returns:
+        ``(pick, duel)``: pick has ``label``, ``decision``, ``reasons``, ``would_change``;
+        duel is the front two's :class:`Outperform` (None with fewer than two).
+    """
+    contenders = [f for f in finalists if f["role"] == "finalist" and _usable(f)]
+    dropped = [f["label"] for f in finalists if f["role"] == "finalist" and not _usable(f)]
+    control = next((f for f in finalists if f["role"] == "control"), None)
+    if not contenders:
+        contenders = [f for f in finalists if _usable(f)] or finalists
+    contenders = sorted(contenders, key=lambda f: (not math.isfinite(f["metrics"]["error"]["mean"]),
+                                                   f["metrics"]["error"]["mean"]))
+    reasons, change = [], []
+    if dropped:
+        reasons.append(f"Left out {', '.join(dropped)}: no completed seed, or the equivariance "
+                       "gate failed after re-training.")
+    duel = None
+    best = contenders[0]
+    chosen = best
+    if len(contenders) > 1:
+        runner = contenders[1]
+        duel = p_outperform(*paired_errors(best, runner), a=best["label"], b=runner["label"],
+                            seed=seed)
+        said = (f"{best['label']} beat {runner['label']} on a share {fmt(duel.p)} of "
+                f"{duel.n} paired seeds (interval [{fmt(duel.low)}, {fmt(duel.high)}])")
+        if duel.conclusion == "b":
+            chosen = runner
+            reasons.append(f"{said}, which favours {runner['label']} despite its higher mean.")
+            change.append(f"More seeds moving P({runner['label']} beats {best['label']}) back "
+                          "towards 0.5.")
+        elif duel.conclusion == "a":
+            reasons.append(f"{said}: a clear and meaningful win by the criterion of "
+                           "Bouthillier et al. (2021).")
+            change.append(f"Further seeds bringing the interval's lower bound to 0.5 or below; "
+                          f"the two would then count as tied and the smaller model would win.")
+        else:
+            small = min((best, runner), key=lambda f: f["cost"].get("params") or math.inf)
+            chosen = small
+            reasons.append(f"{said}: not enough to separate them, so we take the smaller "
+                           f"model, {small['label']} ({fmt(small['cost'].get('params'))} "
+                           "parameters).")
+            change.append(f"Seeds showing one of {best['label']}/{runner['label']} clearly "
+                          "better (lower bound > 0.5 and P > 0.75) would pick that one even "
+                          "if larger.")
+    err = chosen["metrics"]["error"]
+    reasons.insert(0, f"{chosen['label']} ({chosen['origin']}) has mean test error "
+                      f"{fmt(err['mean'])} over {err['n']} seed(s).")
+    name, ratio = _worst_stress(chosen)
+    if name:
+        reasons.append(f"Its hardest stress set is {name}: error ×{fmt(ratio, 3)} the "
+                       "in-distribution error.")
+        change.append(f"A stress ratio on {name} far above the runner-up's, once measured on "
+                      "data closer to the intended use.")
+    if chosen["equivariant"]:
+        reasons.append(f"It passed the equivariance gate (error "
+                       f"{fmt(chosen['equivariance_error'])}).")
+    if control is not None and control is not chosen:
+        vs = p_outperform(*paired_errors(chosen, control), seed=seed)
+        if vs.conclusion == "a":
+            reasons.append(f"It beats the non-equivariant control {control['label']} "
+                           f"(P = {fmt(vs.p)}).")
+        else:
+            c_name, c_ratio = _worst_stress(control)
+            reasons.append(f"The non-equivariant control {control['label']} is not clearly "
+                           f"worse in distribution (P = {fmt(vs.p)}); the case for symmetry "
+                           f"rests on the stress sets (control's worst: {c_name} "
+                           f"×{fmt(c_ratio, 3)}).")
+        change.append(f"The control {control['label']} matching the choice on the stress sets "
+                      "as well: the simpler model would then do.")
+    change.append("Validation against experiments or trusted simulations showing larger "
+                  "errors than measured here.")
+    decision = (f"Use {chosen['label']} ({chosen['config']['model']['family']}, "
+                f"{chosen['origin']}) as the configuration to carry forward.")
+    return {"label": chosen["label"], "decision": decision, "reasons": reasons,
+            "would_change": change}, duel

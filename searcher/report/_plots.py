@@ -1,0 +1,122 @@
+"""Dossier figures as PNG bytes (matplotlib's Agg canvas; no pyplot global state).
+
+Every plot reads the dossier content dict only, so the same figures can be redrawn from a
+saved ``dossier.json``.  Labels are ours (F1, F2, C); no user string reaches a figure.
+"""
+from __future__ import annotations
+
+import io
+import math
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+__all__ = ["PLOTS", "render_plots"]
+
+# Our palette: finalists in slate/teal/ochre tones, the control in a muted grey.
+COLOURS = ("#2b5c8a", "#2a9d8f", "#c98c1c", "#8e5ea2", "#b5523b", "#4f7942")
+CONTROL = "#7d7d7d"
+
+
+def _colour(fin: dict, i: int) -> str:
+    return CONTROL if fin["role"] == "control" else COLOURS[i % len(COLOURS)]
+
+
+def _png(fig: Figure) -> bytes:
+    FigureCanvasAgg(fig)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=96, bbox_inches="tight")
+    return buf.getvalue()
+
+
+def _finite(x) -> bool:
+    return x is not None and math.isfinite(x)
+
+
+def seed_spread(content: dict) -> bytes:
+    """Test error of every seed (dots) with the mean and its interval (bar) per finalist."""
+    fig = Figure(figsize=(6.4, 3.4))
+    ax = fig.add_subplot()
+    for i, fin in enumerate(content["finalists"]):
+        errs = [s["error"] for s in fin["seeds"] if _finite(s["error"])]
+        ax.scatter([i] * len(errs), errs, color=_colour(fin, i), alpha=0.6, zorder=3)
+        iv = fin["metrics"]["error"]
+        if _finite(iv["mean"]):
+            ax.errorbar([i + 0.15], [iv["mean"]], fmt="D", color=_colour(fin, i), capsize=5,
+                        yerr=[[iv["mean"] - iv["low"]], [iv["high"] - iv["mean"]]])
+    ax.set_xticks(range(len(content["finalists"])),
+                  [f["label"] for f in content["finalists"]])
+    ax.set_ylabel("test error (relative L2)")
+    ax.set_title("Seeds (dots) and mean with interval (diamond)")
+    ax.grid(axis="y", alpha=0.3)
+    return _png(fig)
+
+
+def stress_ratios(content: dict) -> bytes:
+    """Mean error ratio (stress / in-distribution) per stress set, grouped by finalist."""
+    names = sorted({n for f in content["finalists"] for n in f["stress"]})
+    fig = Figure(figsize=(7.2, 3.6))
+    ax = fig.add_subplot()
+    width = 0.8 / max(len(content["finalists"]), 1)
+    for i, fin in enumerate(content["finalists"]):
+        ratios = [fin["stress"].get(n, {}).get("ratio", {}).get("mean", math.nan) for n in names]
+        ax.bar(np.arange(len(names)) + i * width, np.nan_to_num(ratios, nan=0.0), width,
+               color=_colour(fin, i), label=fin["label"])
+    ax.axhline(1.0, color="black", lw=0.8, ls="--")
+    ax.set_xticks(np.arange(len(names)) + 0.4 - width / 2, names, rotation=20)
+    ax.set_ylabel("error ratio to test set")
+    ax.set_title("Error under stress, relative to in-distribution (1 = unchanged)")
+    ax.legend(fontsize=8)
+    ax.grid(axis="y", alpha=0.3)
+    return _png(fig)
+
+
+def cheap_vs_full(content: dict) -> bytes:
+    """Search-time validation loss against the dossier's full-fidelity test error."""
+    fig = Figure(figsize=(4.8, 3.6))
+    ax = fig.add_subplot()
+    for i, fin in enumerate(content["finalists"]):
+        x, y = fin.get("search_value"), fin["metrics"]["error"]["mean"]
+        if _finite(x) and _finite(y):
+            ax.scatter([x], [y], color=_colour(fin, i), s=40, zorder=3)
+            ax.annotate(fin["label"], (x, y), textcoords="offset points", xytext=(5, 4))
+    ax.set_xlabel("search-time validation loss")
+    ax.set_ylabel("dossier test error")
+    ax.set_title("Cheap score vs full training")
+    ax.grid(alpha=0.3)
+    return _png(fig)
+
+
+def curves(content: dict) -> bytes:
+    """Validation loss per epoch of every re-run (log scale)."""
+    fig = Figure(figsize=(6.4, 3.4))
+    ax = fig.add_subplot()
+    for i, fin in enumerate(content["finalists"]):
+        for j, seed in enumerate(fin["seeds"]):
+            curve = [v if _finite(v) and v > 0 else np.nan for v in seed.get("curve", [])]
+            if curve:
+                ax.plot(range(1, len(curve) + 1), curve, color=_colour(fin, i), alpha=0.8,
+                        label=fin["label"] if j == 0 else None)
+    if ax.lines:
+        ax.set_yscale("log")
+        ax.legend(fontsize=8)
+    ax.set_xlabel("epoch")
+    ax.set_ylabel("validation loss")
+    ax.set_title("Re-training curves, every seed")
+    ax.grid(alpha=0.3)
+    return _png(fig)
+
+
+# name -> (caption, drawing function); the order is the order in the dossier.
+PLOTS = {
+    "seed-spread": ("Test error per seed", seed_spread),
+    "curves": ("Validation loss while re-training", curves),
+    "stress": ("Error ratios on the stress sets", stress_ratios),
+    "transfer": ("Search-time score against dossier score", cheap_vs_full),
+}
+
+
+def render_plots(content: dict) -> dict[str, tuple[str, bytes]]:
+    """Draw every figure: name → (caption, PNG bytes)."""
+    return {name: (caption, draw(content)) for name, (caption, draw) in PLOTS.items()}

@@ -1,0 +1,171 @@
+"""The dossier's sections as plain rows, shared by the HTML and Markdown writers.
+
+A section is ``(anchor, title, blocks)``; a block is ``("text", str)``,
+``("list", [str])``, ``("table", header, rows)``, ``("plot", name)`` or ``("code", str)``.
+Writers only lay blocks out, so both formats carry the same content in the same order.
+"""
+from __future__ import annotations
+
+import json
+import math
+
+import yaml
+
+__all__ = ["SECTION_TITLES", "fmt", "sections"]
+
+SECTION_TITLES = {
+    "choice": "Our choice",
+    "before-use": "Before you use this",
+    "contenders": "The contenders",
+    "seeds": "Seed by seed",
+    "head-to-head": "Head to head",
+    "stress": "Off the training distribution",
+    "symmetry-cost": "Symmetry, size and speed",
+    "transfer": "Cheap scores against full training",
+    "settings": "Settings that differ",
+    "origin": "Where this came from",
+    "files": "Files written",
+}
+
+
+def fmt(x, digits: int = 4) -> str:
+    """A number for people: 4 significant digits, "—" for missing or non-finite."""
+    if x is None or isinstance(x, str):
+        return "—" if x in (None, "") else x
+    if isinstance(x, bool):
+        return "yes" if x else "no"
+    if isinstance(x, int):
+        return f"{x:,}"
+    return f"{x:.{digits}g}" if math.isfinite(x) else "—"
+
+
+def _iv(iv: dict) -> str:
+    if not iv or iv.get("n", 0) == 0:
+        return "—"
+    if iv["method"] == "none":
+        return fmt(iv["mean"])
+    return f"{fmt(iv['mean'])} [{fmt(iv['low'])}, {fmt(iv['high'])}]"
+
+
+def _flatten(cfg: dict, prefix: str = "") -> dict:
+    out = {}
+    for key, value in cfg.items():
+        path = f"{prefix}{key}"
+        if isinstance(value, dict) and value:
+            out.update(_flatten(value, path + "."))
+        else:
+            out[path] = value
+    return out
+
+
+def _choice(c: dict) -> list:
+    pick = c["pick"]
+    return [("text", pick["decision"]), ("text", "Why:"), ("list", pick["reasons"]),
+            ("text", "What evidence would change this:"), ("list", pick["would_change"])]
+
+
+def _contenders(c: dict) -> list:
+    rows = [[f["label"], f["role"], f["origin"], f["config"]["model"]["family"],
+             fmt(f.get("search_value")), _iv(f["metrics"]["error"]),
+             _iv(f["metrics"]["best_value"]), fmt(f["cost"].get("params"))]
+            for f in c["finalists"]]
+    return [("text", f"{c['settings']['seeds']} seed(s) each, {c['settings']['epochs']} "
+                     "epochs on the full training set. Intervals: "
+                     f"{c['settings']['confidence']:.0%} bootstrap over seeds."),
+            ("table", ["label", "role", "from", "family", "search loss",
+                       "test error", "val loss", "params"], rows)]
+
+
+def _seeds(c: dict) -> list:
+    rows = []
+    for f in c["finalists"]:
+        for s in f["seeds"]:
+            rows.append([f["label"], str(s["seed"]), s["status"], fmt(s["epochs"]),
+                         fmt(s["best_value"]), fmt(s["error"])]
+                        + [fmt(v) for v in s["test"].values()])
+    blocks = sorted({k for f in c["finalists"] for s in f["seeds"] for k in s["test"]})
+    notes = sorted({f["metrics"]["error"]["note"] for f in c["finalists"]} - {""})
+    return [("table", ["label", "seed", "status", "epochs", "val loss", "test error"]
+             + [f"test {b}" for b in blocks], rows),
+            ("list", notes), ("plot", "seed-spread"), ("plot", "curves")]
+
+
+def _head_to_head(c: dict) -> list:
+    out = []
+    duel = c.get("p_a_beats_b")
+    if duel:
+        verdict = {"a": f"{duel['a']} is better", "b": f"{duel['b']} is better",
+                   "neither": "no clear winner"}[duel["conclusion"]]
+        out += [("table", ["comparison", "P(A beats B)", "interval", "paired seeds", "verdict"],
+                 [[f"A = {duel['a']}, B = {duel['b']}", fmt(duel["p"]),
+                   f"[{fmt(duel['low'])}, {fmt(duel['high'])}]", str(duel["n"]), verdict]]),
+                ("list", [duel["rule"]] + ([duel["note"]] if duel["note"] else []))]
+    else:
+        out.append(("text", "Only one finalist: nothing to compare."))
+    rs = c["rank_stability"]
+    out.append(("text", f"Rank stability over {rs['seeds']} seed(s) and {rs['candidates']} "
+                        f"candidates: Kendall's W = {fmt(rs['kendall_w'])}, seeds reproducing "
+                        f"the order of the means = {fmt(rs['same_order'])}. {rs['note']}".strip()))
+    return out
+
+
+def _stress(c: dict) -> list:
+    names = sorted({n for f in c["finalists"] for n in f["stress"]})
+    rows = [[f["label"]] + [f"{_iv(f['stress'][n]['error'])} (×{fmt(f['stress'][n]['ratio']['mean'], 3)})"
+                            if n in f["stress"] else "—" for n in names]
+            for f in c["finalists"]]
+    return [("text", "Test error on each stress set; in brackets the ratio to the same seed's "
+                     "in-distribution test error (1 = no loss of accuracy)."),
+            ("table", ["label"] + names, rows), ("plot", "stress")]
+
+
+def _symmetry_cost(c: dict) -> list:
+    rows = [[f["label"], fmt(f["equivariant"]), fmt(f["equivariance_error"]),
+             fmt(f["cost"].get("params")), fmt(f["cost"].get("madds_per_node")),
+             _iv(f["metrics"]["inference_ms_per_1k_nodes"]), _iv(f["metrics"]["cpu_seconds"])]
+            for f in c["finalists"]]
+    return [("table", ["label", "equivariant", "equivariance error", "params",
+                       "multiply-adds per node", "ms per 1,000 nodes", "training CPU-s"], rows),
+            ("text", "The equivariance error is the equivariance gate's float64 measure "
+                     "(largest over seeds); baselines are not expected to pass it.")]
+
+
+def _transfer(c: dict) -> list:
+    t = c["fidelity_transfer"]
+    text = (f"Spearman rho between search-time loss and dossier test error over {t['n']} "
+            f"configurations: {fmt(t['rho'])} (p = {fmt(t['p_value'])}).")
+    return [("text", text), ("list", [t["note"]] if t["note"] else []), ("plot", "transfer")]
+
+
+def _settings(c: dict) -> list:
+    flat = [_flatten(f["config"]) for f in c["finalists"]]
+    keys = [k for k in flat[0] if len({json.dumps(fl.get(k), sort_keys=True) for fl in flat}) > 1]
+    rows = [[k] + [json.dumps(fl.get(k)) for fl in flat] for k in keys]
+    picked = next(f for f in c["finalists"] if f["label"] == c["pick"]["label"])
+    return [("table", ["key"] + [f["label"] for f in c["finalists"]], rows),
+            ("text", f"Model settings of the choice ({picked['label']}):"),
+            ("code", yaml.safe_dump(picked["config"]["model"], sort_keys=False))]
+
+
+def _origin(c: dict) -> list:
+    p = c["provenance"]
+    rows = [[k, str(v)] for k, v in p.items() if k != "packages"]
+    rows += [[f"package {k}", v] for k, v in p["packages"].items()]
+    return [("table", ["item", "value"], rows)]
+
+
+def _files(c: dict) -> list:
+    return [("table", ["what", "file"], [[k, str(v)] for k, v in c["files"].items()
+                                         if not isinstance(v, list)]
+             + [["figure", name] for name in c["files"].get("plots", [])])]
+
+
+BUILDERS = {"choice": _choice, "before-use": lambda c: [("list", c["cautions"])],
+            "contenders": _contenders, "seeds": _seeds, "head-to-head": _head_to_head,
+            "stress": _stress, "symmetry-cost": _symmetry_cost, "transfer": _transfer,
+            "settings": _settings, "origin": _origin, "files": _files}
+
+
+def sections(content: dict) -> list[tuple[str, str, list]]:
+    """Every section of the dossier, in order: ``(anchor, title, blocks)``."""
+    return [(anchor, title, BUILDERS[anchor](content)) for anchor, title in SECTION_TITLES.items()]

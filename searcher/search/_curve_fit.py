@@ -1,0 +1,284 @@
+"""Learning-curve extrapolation pruner (Domhan, Springenberg & Hutter, IJCAI 2015).
+
+Rung-based pruners (median, successive halving, Hyperband) compare a trial with its rivals at
+the *same* epoch, so they assume learning curves rarely cross.  Equivariant networks often sit
+on a plateau and then drop by decades, and rung rules kill them.  This pruner instead fits a
+few published parametric curve shapes to the trial's own log10 validation loss, extrapolates
+them to the last epoch, and prunes only when the predicted chance of beating the k-th best
+finished trial is small.
+
+Every shape is ``y(x) = c + a * phi(x; theta)`` with ``y = log10(loss)``, ``a >= 0`` (the loss
+never rises in expectation) and ``c`` the asymptote.  The shapes are Domhan et al.'s families,
+turned upside down because they model accuracy rising where we model loss falling:
+
+* pow3      ``phi = x^(-alpha)``                    (their pow3: c - a x^-alpha)
+* exp3      ``phi = exp(-b u)``, ``u = x / X``      (their exp3: c - exp(-a x + b))
+* mmf       ``phi = 1 / (1 + (u / h)^delta)``       (their MMF; their log power is the same shape
+  once an offset is allowed, so it is not fitted twice)
+* weibull   ``phi = exp(-(u / h)^delta)``           (their Weibull; Janoschek is the same shape
+  with kappa' = kappa^delta, so it is not fitted twice)
+
+Weibull and mmf are sigmoidal in log x, so they can describe a plateau followed by a drop.
+
+Instead of Domhan's MCMC we use a Laplace approximation, which is fast and deterministic: each
+shape is fitted by variable projection (a grid over theta with c and a solved in closed form)
+followed by a bounded, robust (soft-L1) ``scipy.optimize.least_squares`` refinement from the
+best grid point; the prediction at X is Student-t (degrees of freedom n - k) with the
+residual variance plus the parameter variance propagated through the Jacobian covariance;
+shapes are mixed with BIC weights.
+
+Known limit: a curve still flat on its plateau is extrapolated as flat, like any curve
+fit; set ``min_epochs`` past the plateaus a search space is known to produce.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+import optuna
+from optuna.trial import TrialState
+from scipy.optimize import least_squares
+from scipy.special import stdtr
+
+__all__ = ["CurveFitPruner", "prob_beats"]
+
+# Residual standard deviation floor in decades: a validation loss measured on a finite set
+# always jitters by a few percent, and exact synthetic curves must not give zero variance.
+_NOISE_FLOOR = 0.01
+# Prior on the asymptote: at most this many decades below the best value seen so far
+# (float32 training rarely gains more than ~7 decades in total).
+_MAX_DROP = 6.0
+# Fewest finite points to fit; each shape also needs two more points than parameters.
+_MIN_POINTS = 5
+_STARTS = 1          # refinements per shape: the grid already is the multi-start
+_MAX_NFEV = 30       # small: the grid start is already close
+
+
+@dataclass(frozen=True)
+class _Shape:
+    """One curve family: ``phi(x, u, theta) -> (phi [n], dphi/dtheta [n, m])``."""
+
+    name: str
+    grid: np.ndarray                     # [G, m] starting values of theta
+    lower: tuple[float, ...]
+    upper: tuple[float, ...]
+    phi: Callable[[np.ndarray, np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray]]
+
+
+def _pow3(x, u, th):
+    p = x ** -th[0]
+    return p, (-np.log(x) * p)[:, None]
+
+
+def _exp3(x, u, th):
+    p = np.exp(-th[0] * u)
+    return p, (-u * p)[:, None]
+
+
+def _mmf(x, u, th):
+    h, d = th
+    r = u / h
+    z = r ** d
+    q = 1.0 / (1.0 + z)
+    return q, np.stack([q * q * z * d / h, -q * q * z * np.log(r)], axis=1)
+
+
+def _weibull(x, u, th):
+    h, d = th
+    r = u / h
+    z = r ** d
+    p = np.exp(-z)
+    return p, np.stack([p * z * d / h, -p * z * np.log(r)], axis=1)
+
+
+def _grid2(hs, ds):
+    return np.array([(h, d) for h in hs for d in ds], dtype=float)
+
+
+_HALF = np.geomspace(0.02, 2.0, 9)       # h: half-drop point as a fraction of the budget
+_STEEP = np.array([0.7, 1.5, 3.0, 6.0])  # delta: steepness
+_SHAPES = (
+    _Shape("pow3", np.geomspace(0.05, 3.0, 10)[:, None], (0.01,), (6.0,), _pow3),
+    _Shape("exp3", np.geomspace(0.3, 60.0, 10)[:, None], (0.05,), (200.0,), _exp3),
+    _Shape("mmf", _grid2(_HALF, _STEEP), (0.005, 0.3), (5.0, 12.0), _mmf),
+    _Shape("weibull", _grid2(_HALF, _STEEP), (0.005, 0.3), (5.0, 12.0), _weibull),
+)
+
+
+def _project(y: np.ndarray, phis: np.ndarray, c_lo: float) -> tuple[np.ndarray, np.ndarray,
+                                                                      np.ndarray]:
+    """Closed-form c, a (a >= 0, c >= c_lo) for every grid row of ``phis`` [G, n]."""
+    pm = phis.mean(axis=1, keepdims=True)
+    dev = phis - pm
+    var = (dev * dev).sum(axis=1)
+    a = np.where(var > 1e-12, (dev * (y - y.mean())).sum(axis=1) / np.maximum(var, 1e-12), 0.0)
+    a = np.maximum(a, 0.0)
+    c = np.maximum(y.mean() - a * pm[:, 0], c_lo)
+    rss = ((c[:, None] + a[:, None] * phis - y) ** 2).sum(axis=1)
+    return c, a, rss
+
+
+def _fit_shape(shape: _Shape, x, u, y, x_end, u_end, c_lo, c_hi, scale):
+    """Fit one shape; returns (mean, scale at X, degrees of freedom, BIC) or None."""
+    n, m = y.size, shape.grid.shape[1]
+    k = m + 2
+    if n < k + 2:
+        return None
+    # Broadcast theta [m, G, 1] against x [1, n]: every grid row's phi in one call.
+    phis = shape.phi(x[None, :], u[None, :], shape.grid.T[:, :, None])[0]
+    c0, a0, rss0 = _project(y, phis, c_lo)
+    lower = np.array([c_lo, 0.0, *shape.lower])
+    upper = np.array([c_hi, np.inf, *shape.upper])
+
+    def resid(p):
+        return p[0] + p[1] * shape.phi(x, u, p[2:])[0] - y
+
+    def jac(p):
+        phi, dphi = shape.phi(x, u, p[2:])
+        return np.column_stack([np.ones_like(phi), phi, p[1] * dphi])
+
+    best = None
+    for g in np.argsort(rss0, kind="stable")[:_STARTS]:
+        p0 = np.clip(np.r_[c0[g], a0[g], shape.grid[g]], lower, upper)
+        res = least_squares(resid, p0, jac=jac, bounds=(lower, upper), loss="soft_l1",
+                            f_scale=scale, max_nfev=_MAX_NFEV, method="trf")
+        if best is None or res.cost < best.cost:
+            best = res
+    p = best.x
+    r = resid(p)
+    rss = float(r @ r)
+    # The residual variance from n - k points is unreliable when few points are seen, so the
+    # curve-wide noise estimate ``scale`` is a floor for it.
+    s2 = max(rss / (n - k), scale ** 2)
+    J = jac(p)
+    phi_end, dphi_end = shape.phi(x_end, u_end, p[2:])
+    g = np.r_[1.0, phi_end[0], p[1] * dphi_end[0]]
+    # Laplace approximation: Cov = s^2 (J^T J)^+; directions the data cannot see are dropped.
+    cov = s2 * np.linalg.pinv(J.T @ J, rcond=1e-10, hermitian=True)
+    spread = math.sqrt(s2 + max(float(g @ cov @ g), 0.0))
+    mean = p[0] + p[1] * phi_end[0]
+    bic = n * math.log(max(rss / n, _NOISE_FLOOR ** 2)) + k * math.log(n)
+    return mean, spread, n - k, bic
+
+
+def prob_beats(curve, max_epochs: int, target: float) -> float:
+    """Probability that a loss curve ends below ``target`` by epoch ``max_epochs``.
+
+    Args:
+        curve: validation loss per epoch, ``curve[i]`` at epoch ``i + 1``; NaN, Inf and values
+            <= 0 are ignored (divergence is the trainer's business).
+        max_epochs: the epoch whose loss is predicted (the full budget).
+        target: the loss to beat (e.g. the k-th best finished trial's value).
+
+    Shapes:
+        curve: [n] with n >= 1.
+
+    Returns:
+        1.0 when the best finite value already beats ``target``; the best-so-far verdict (1.0
+        or 0.0) when ``len(curve) >= max_epochs``; NaN when fewer than 5 finite points remain;
+        otherwise the BIC-weighted mixture probability P(log10 loss at max_epochs < log10
+        target).
+
+    Example:
+        >>> x = np.arange(1, 11)
+        >>> round(prob_beats(10 ** (-3 + 2 * x ** -0.5), 100, 1e-2), 3)
+        1.0
+    """
+    y_all = np.asarray(curve, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        logs = np.log10(y_all)
+    ok = np.isfinite(logs)
+    if not ok.any():
+        return float("nan")
+    best = float(y_all[ok].min())
+    if best <= target:
+        return 1.0
+    if y_all.size >= max_epochs:
+        return 0.0
+    if ok.sum() < _MIN_POINTS:
+        return float("nan")
+    x = np.arange(1, y_all.size + 1, dtype=float)[ok]
+    y = logs[ok]
+    x_end = np.array([float(max_epochs)])
+    u, u_end = x / max_epochs, x_end / max_epochs
+    d2 = np.diff(y, 2)
+    # Robust noise scale from second differences (a smooth trend barely moves them); it sets
+    # where soft-L1 switches from squared to absolute residuals.
+    scale = max(_NOISE_FLOOR, 1.4826 * float(np.median(np.abs(d2))) / math.sqrt(6.0))
+    c_lo, c_hi = float(y.min()) - _MAX_DROP, float(y.max()) + 1.0
+    fits = [f for s in _SHAPES
+            if (f := _fit_shape(s, x, u, y, x_end, u_end, c_lo, c_hi, scale)) is not None]
+    means, spreads, dofs, bics = (np.array(v) for v in zip(*fits))
+    w = np.exp(-(bics - bics.min()) / 2.0)
+    w /= w.sum()
+    # Student-t rather than Gaussian: the variance itself is estimated from n - k points.
+    t = (math.log10(target) - means) / spreads
+    return float(np.clip(w @ stdtr(dofs, t), 0.0, 1.0))
+
+
+class CurveFitPruner(optuna.pruners.BasePruner):
+    """Prune a trial when its extrapolated curve is unlikely to beat the k-th best finished one.
+
+    The trial's intermediate values (validation loss, step = epoch from 1) are passed to
+    :func:`prob_beats` with ``target`` = the ``rank``-th best value among COMPLETE trials (a
+    complete trial without a finite value counts with its best finite intermediate value).
+
+    Never prunes: before ``min_epochs``; at or beyond ``max_epochs``; while fewer than
+    ``rank`` trials have completed; a trial whose best value so far already beats the target;
+    a trial with fewer than 5 finite values.  Minimising studies only.
+
+    Args:
+        min_epochs: first epoch at which a trial may be pruned.
+        max_epochs: the full training budget in epochs (the extrapolation point).
+        threshold: prune when P(final < target) is below this (Domhan et al. use 0.05).
+        rank: k, the rank of the finished trial the running one must beat.
+
+    Example:
+        >>> pruner = CurveFitPruner(min_epochs=5, max_epochs=30, threshold=0.05, rank=3)
+    """
+
+    def __init__(self, min_epochs: int = 1, max_epochs: int = 20, threshold: float = 0.05,
+                 rank: int = 3) -> None:
+        if not 1 <= min_epochs < max_epochs:
+            raise ValueError("1 <= min_epochs < max_epochs must hold, but got "
+                             f"min_epochs={min_epochs}, max_epochs={max_epochs}.")
+        if not 0.0 < threshold < 1.0:
+            raise ValueError(f"0 < threshold < 1 must hold, but got threshold={threshold}.")
+        if rank < 1:
+            raise ValueError(f"rank >= 1 must hold, but got rank={rank}.")
+        self._min_epochs = int(min_epochs)
+        self._max_epochs = int(max_epochs)
+        self._threshold = float(threshold)
+        self._rank = int(rank)
+
+    def _target(self, study: optuna.Study) -> float | None:
+        values = []
+        for t in study.get_trials(deepcopy=False, states=(TrialState.COMPLETE,)):
+            v = t.value
+            if v is None or not math.isfinite(v):
+                finite = [w for w in t.intermediate_values.values() if math.isfinite(w)]
+                v = min(finite) if finite else None
+            if v is not None:
+                values.append(v)
+        if len(values) < self._rank:
+            return None
+        return sorted(values)[self._rank - 1]
+
+    def prune(self, study: optuna.Study, trial: optuna.trial.FrozenTrial) -> bool:
+        if study.direction != optuna.study.StudyDirection.MINIMIZE:
+            raise ValueError("CurveFitPruner needs a minimising study, but got direction="
+                             f"{study.direction.name}.")
+        step = trial.last_step
+        if step is None or step < self._min_epochs or step >= self._max_epochs:
+            return False
+        target = self._target(study)
+        if target is None:
+            return False
+        curve = np.full(step, np.nan)
+        for s, v in trial.intermediate_values.items():
+            if 1 <= s <= step:
+                curve[s - 1] = v
+        # NaN (too few points) compares False, so an unfit curve is never pruned.
+        return bool(prob_beats(curve, self._max_epochs, target) < self._threshold)

@@ -1,0 +1,213 @@
+"""MLflow tracking: one parent run per study, one nested child run per trial.
+
+Parent: tags ``searcher.role=study`` and ``searcher.study=<name>`` (found again on resume).
+Child: tags ``mlflow.parentRunId``, ``searcher.role=trial``, ``searcher.trial=<number>``;
+params = the flattened resolved config (dotted keys, values as text, at most 500 characters,
+passwords masked); metrics per epoch (step = epoch) sent with ``log_batch`` (at most 1000 items
+a call); at the end tags ``searcher.outcome``, ``searcher.reason``, ``searcher.pruned_at`` and the
+config as ``config.yaml``.
+
+Several workers write one sqlite file at once, so every call is retried with backoff when
+sqlite says the database is locked.  Any other tracking failure (a bad URI, a server that is
+down) gives one warning and switches tracking off for that process: the Optuna store, which
+holds everything analysis needs, is never held up by the tracker.
+"""
+from __future__ import annotations
+
+import logging
+import os
+import random
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import yaml
+
+from ._urls import mask_url, public_config, tracking_uri
+
+__all__ = ["Tracker", "TrackingInfo", "prepare_tracking", "find_study_run", "flatten", "STUDY_ROLE",
+           "TRIAL_ROLE"]
+
+log = logging.getLogger("searcher")
+STUDY_ROLE, TRIAL_ROLE = "study", "trial"
+_MAX_ITEMS = 1000
+_MAX_PARAMS = 100
+_PARAM_CHARS = 500
+_TRIES = 10
+
+
+@dataclass(frozen=True)
+class TrackingInfo:
+    """What a worker needs to log into the study's parent run (picklable)."""
+
+    uri: str
+    experiment_id: str
+    parent_run_id: str
+    study: str
+
+
+def flatten(config: dict, prefix: str = "") -> dict[str, str]:
+    """``{"a": {"b": 1}}`` → ``{"a.b": "1"}`` (values as text, at most 500 characters)."""
+    out = {}
+    for key, value in config.items():
+        name = f"{prefix}{key}"
+        if isinstance(value, dict) and value:
+            out.update(flatten(value, name + "."))
+        else:
+            out[name] = str(value)[:_PARAM_CHARS]
+    return out
+
+
+def _quiet() -> None:
+    for name in ("mlflow", "alembic", "sqlalchemy"):
+        logging.getLogger(name).setLevel(logging.WARNING)
+
+
+def _locked(err: Exception) -> bool:
+    return "locked" in str(err).lower() or "busy" in str(err).lower()
+
+
+class Tracker:
+    """MLflow client wrapper that retries lock errors and never raises.
+
+    Args:
+        info: where to log; ``None`` means tracking is off.
+    """
+
+    def __init__(self, info: TrackingInfo | None) -> None:
+        self.info = info
+        self.client = None
+        if info is not None:
+            _quiet()
+            try:
+                from mlflow import MlflowClient
+
+                self.client = MlflowClient(tracking_uri=info.uri)
+            except Exception as err:  # bad URI scheme, missing plugin, ...
+                self._off(err)
+
+    @property
+    def on(self) -> bool:
+        return self.client is not None
+
+    def _off(self, err: Exception) -> None:
+        uri = mask_url(self.info.uri) if self.info else ""
+        log.warning("tracking to %s is off for this worker: %s: %s (the Optuna store keeps "
+                    "every result)", uri, type(err).__name__, mask_url(str(err)).splitlines()[0]
+                    if str(err) else "")
+        self.client = None
+
+    def call(self, method: str, *args, **kwargs):
+        """``client.<method>(*args, **kwargs)``, retried on lock errors; None on failure."""
+        if self.client is None:
+            return None
+        for attempt in range(_TRIES):
+            try:
+                return getattr(self.client, method)(*args, **kwargs)
+            except Exception as err:
+                if _locked(err) and attempt < _TRIES - 1:
+                    time.sleep(min(2.0, 0.05 * 2 ** attempt) * (1 + random.random()))
+                    continue
+                self._off(err)
+                return None
+        return None
+
+    def start_run(self, run_name: str, tags: dict, config: dict) -> str:
+        """Create a child run of the study run with ``tags`` and the config as params;
+        returns its run id ("" when tracking is off)."""
+        if not self.on:
+            return ""
+        info = self.info
+        run = self.call("create_run", info.experiment_id, run_name=run_name, tags={
+            "mlflow.parentRunId": info.parent_run_id, "searcher.study": info.study, **tags})
+        if run is None:
+            return ""
+        from mlflow.entities import Param
+
+        params = [Param(k, v) for k, v in flatten(public_config(config)).items()]
+        for k in range(0, len(params), _MAX_PARAMS):
+            self.call("log_batch", run.info.run_id, params=params[k:k + _MAX_PARAMS])
+        return run.info.run_id
+
+    def start_trial(self, number: int, config: dict) -> str:
+        """Create the child run of trial ``number``; returns its run id ("" when off)."""
+        return self.start_run(f"trial-{number:04d}", {"searcher.role": TRIAL_ROLE,
+                                                      "searcher.trial": str(number)}, config)
+
+    def log_metrics(self, run_id: str, rows: list[tuple[int, dict]]) -> None:
+        """Send ``[(epoch, {name: value})]`` in batches of at most 1000 items."""
+        if not (self.on and run_id and rows):
+            return
+        from mlflow.entities import Metric
+
+        now = int(time.time() * 1000)
+        items = [Metric(k, float(v), now, int(epoch)) for epoch, m in rows for k, v in m.items()]
+        for k in range(0, len(items), _MAX_ITEMS):
+            self.call("log_batch", run_id, metrics=items[k:k + _MAX_ITEMS])
+
+    def finish(self, run_id: str, *, outcome: str, reason: str, config: dict | None,
+               pruned_at: int | None = None, extra_tags: dict | None = None) -> None:
+        """Tag the outcome, attach the config and close the run."""
+        if not (self.on and run_id):
+            return
+        from mlflow.entities import RunTag
+
+        tags = {"searcher.outcome": outcome, "searcher.reason": mask_url(reason)[:5000]}
+        if pruned_at is not None:
+            tags["searcher.pruned_at"] = str(pruned_at)
+        tags.update(extra_tags or {})
+        self.call("log_batch", run_id, tags=[RunTag(k, v) for k, v in tags.items()])
+        if config is not None:
+            self.call("log_text", run_id, yaml.safe_dump(public_config(config), sort_keys=False),
+                      "config.yaml")
+        status = {"interrupted": "KILLED", "failed": "FAILED"}.get(outcome, "FINISHED")
+        self.call("set_terminated", run_id, status=status)
+
+
+def find_study_run(tracker: Tracker, experiment_id: str, study: str):
+    """The oldest parent run of ``study`` in the experiment, or None."""
+    runs = tracker.call(
+        "search_runs", [experiment_id], filter_string=f"tags.`searcher.role` = '{STUDY_ROLE}' "
+        f"and tags.`searcher.study` = '{study}'", order_by=["attributes.start_time ASC"],
+        max_results=1)
+    return runs[0] if runs else None
+
+
+def prepare_tracking(study, config: dict, output_dir: Path) -> TrackingInfo | None:
+    """Create (or find) the experiment and the study's parent run; None when unreachable.
+
+    Called once by the process that starts the workers, so that creating the sqlite schema
+    never races between workers.
+    """
+    _quiet()
+    uri = tracking_uri(config["tracking"]["uri"], output_dir)
+    # Fail fast on an unreachable server instead of MLflow's minutes of HTTP retries.
+    os.environ.setdefault("MLFLOW_HTTP_REQUEST_MAX_RETRIES", "0")
+    os.environ.setdefault("MLFLOW_HTTP_REQUEST_TIMEOUT", "10")
+    name = config["tracking"]["experiment"] or study.name
+    probe = Tracker(TrackingInfo(uri, "", "", study.name))
+    if not probe.on:
+        return None
+    exp = probe.call("get_experiment_by_name", name)
+    if probe.on and exp is None:
+        artifacts = None
+        if uri.startswith("sqlite:") and not config["tracking"]["uri"] \
+                and not os.environ.get("MLFLOW_TRACKING_URI"):
+            artifacts = (Path(output_dir) / "artifacts").resolve().as_uri()
+        exp_id = probe.call("create_experiment", name, artifact_location=artifacts)
+        if exp_id is None and probe.on:
+            exp = probe.call("get_experiment_by_name", name)  # created by a rival meanwhile
+            exp_id = exp.experiment_id if exp else None
+    else:
+        exp_id = exp.experiment_id if exp else None
+    if not probe.on or exp_id is None:
+        return None
+    parent = find_study_run(probe, exp_id, study.name)
+    if parent is None and probe.on:
+        parent = probe.call("create_run", exp_id, run_name=f"study-{study.name}", tags={
+            "searcher.role": STUDY_ROLE, "searcher.study": study.name,
+            "searcher.study_hash": study.hash, "searcher.summary":
+            str(config["study"]["summary"])[:500]})
+    if parent is None:
+        return None
+    return TrackingInfo(uri, str(exp_id), parent.info.run_id, study.name)

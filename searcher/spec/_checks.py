@@ -1,0 +1,256 @@
+"""Validation of a merged study against ``defaults.yaml`` and the declared rules.
+
+Every check appends to one :class:`Sink`, so a user sees all problems of a file at once.
+Structural checks come first (unknown keys, types, dimension forms), then the rules that
+tie keys together (conditions, derived names and cycles, fields named by the model, pruner
+budget vs epochs).
+"""
+from __future__ import annotations
+
+from searcher.spec._dims import Dimension, Sink, did_you_mean, is_dimension, parse_dimension
+from searcher.spec._rules import RULES, VARYING_SECTIONS, Fields, Fractions, Names
+from searcher.spec._irreps import FIELD_KINDS, task_fields
+
+__all__ = ["check_tree", "check_links", "leaf_paths", "get", "condition_values", "order_dims"]
+
+
+def leaf_paths(tree: dict, path: tuple = ()) -> list[str]:
+    """Dotted paths of every leaf key of ``tree`` (defaults order)."""
+    out = []
+    for key, value in tree.items():
+        dotted = ".".join(path + (key,))
+        if isinstance(value, dict) and dotted not in RULES:
+            out += leaf_paths(value, path + (key,))
+        else:
+            out.append(dotted)
+    return out
+
+
+def get(cfg: dict, dotted: str):
+    for part in dotted.split("."):
+        cfg = cfg[part]
+    return cfg
+
+
+def condition_values(dotted: str, allowed) -> list:
+    """The values an ``only_if`` entry accepts (a list of lists for list-valued keys)."""
+    list_key = isinstance(RULES.get(dotted), (Names, Fractions))
+    if isinstance(allowed, list) and (not list_key or all(isinstance(a, list) for a in allowed)):
+        return allowed
+    return [allowed]
+
+
+def check_tree(data: dict, defaults: dict, sink: Sink, path: tuple = ()) -> dict[str, Dimension]:
+    """Check keys, types and dimension forms; returns the dimensions by dotted name."""
+    dims: dict[str, Dimension] = {}
+    for key, value in data.items():
+        here = path + (key,)
+        dotted = ".".join(here)
+        if key not in defaults:
+            near = did_you_mean(key, defaults)
+            if not near:  # a key put in the wrong section: suggest its full path
+                near = did_you_mean(dotted, [p for p in leaf_paths(defaults, path)
+                                             if p.rsplit(".", 1)[-1] == key] or ["-"])
+            allowed = ", ".join(defaults) if len(defaults) < 12 else "see searcher/spec/defaults.yaml"
+            sink.add(f"unknown key {key!r}{near} (allowed here: {allowed})", here, key=True)
+            continue
+        default = defaults[key]
+        if isinstance(default, dict) and dotted not in RULES:
+            if is_dimension(value):
+                sink.add("dimensions are allowed on single keys only, not on a whole section",
+                         here)
+            elif not isinstance(value, dict):
+                sink.add(f"expected a mapping of keys, got {value!r}", here)
+            else:
+                dims.update(check_tree(value, default, sink, here))
+            continue
+        rule = RULES[dotted]
+        if is_dimension(value) and not isinstance(rule, Fields):
+            if here[0] not in VARYING_SECTIONS:
+                sink.add(f"{here[0]} keys are fixed; dimensions are allowed under "
+                         f"{' and '.join(VARYING_SECTIONS)} only", here)
+                continue
+            dim = parse_dimension(here, value, rule, default, sink)
+            if dim is not None:
+                dims[dotted] = dim
+            continue
+        why = rule.problem(value)
+        if why:
+            sink.add(f"got {value!r}; allowed: {why}", here)
+        elif isinstance(rule, Fields):
+            _check_fields(value, here, sink)
+    return dims
+
+
+def _check_fields(fields: dict, path: tuple, sink: Sink):
+    for name, entry in fields.items():
+        if not isinstance(entry, dict):
+            sink.add(f"field {name!r} needs a mapping {{kind, role, level}}, got {entry!r}",
+                     path + (name,))
+            continue
+        for key, rule in Fields.keys.items():
+            if key not in entry:
+                if key != "level":
+                    sink.add(f"field {name!r} needs {key!r} ({rule.problem(None)})", path + (name,))
+            elif rule.problem(entry[key]):
+                sink.add(f"got {entry[key]!r}; allowed: {rule.problem(entry[key])}",
+                         path + (name, key))
+        for key in entry:
+            if key not in Fields.keys:
+                sink.add(f"unknown key {key!r}{did_you_mean(key, Fields.keys)}; allowed: "
+                         "kind, role, level", path + (name, key), key=True)
+
+
+def _possible(dotted: str, dims: dict, fixed: dict) -> list | None:
+    dim = dims.get(dotted)
+    if dim is None:
+        return [get(fixed, dotted)]
+    if dim.kind == "choice":
+        return list(dim.options)
+    if dim.kind == "int":
+        return dim.values() if dim.size() <= 4096 else dim.extremes()
+    return None if dim.kind == "derived" else dim.extremes()
+
+
+def order_dims(dims: dict[str, Dimension], sink: Sink) -> list[Dimension]:
+    """Searched dimensions first (parents of conditions before children), then derived ones
+    in dependency order; cycles become problems."""
+    def depends(dim):
+        deps = set(dim.only_if)
+        if dim.expr is not None:
+            deps |= set(dim.expr.names)
+        return [d for d in deps if d in dims and d != dim.name] + \
+            ([dim.name] if dim.expr is not None and dim.name in dim.expr.names else [])
+
+    ordered, done, stack = [], set(), []
+
+    def visit(name):
+        if name in done:
+            return
+        if name in stack:
+            cycle = stack[stack.index(name):] + [name]
+            what = "derive" if dims[name].kind == "derived" else "only_if"
+            sink.add(f"{what} cycle: {' -> '.join(cycle)}", tuple(name.split(".")),
+                     at=tuple(name.split(".")) + (what,))
+            return
+        stack.append(name)
+        for dep in depends(dims[name]):
+            visit(dep)
+        stack.pop()
+        done.add(name)
+        ordered.append(dims[name])
+
+    searched = [d for d in dims.values() if d.kind != "derived"]
+    for dim in searched + [d for d in dims.values() if d.kind == "derived"]:
+        visit(dim.name)
+    return sorted(ordered, key=lambda d: d.kind == "derived")
+
+
+def check_links(dims: dict[str, Dimension], fixed: dict, leaves: list[str], sink: Sink):
+    """Rules that tie keys together; ``fixed`` is the config with dimensions at defaults."""
+    for dim in dims.values():
+        at = tuple(dim.name.split("."))
+        for key, allowed in dim.only_if.items():
+            where = at + ("only_if", key)
+            if key not in leaves:
+                sink.add(f"only_if names {key!r}, which is not a key{did_you_mean(key, leaves)}",
+                         at, at=where)
+                continue
+            if key in dims and dims[key].kind == "derived":
+                sink.add(f"only_if may not name the derived key {key!r}", at, at=where)
+                continue
+            possible = _possible(key, dims, fixed)
+            target = dims.get(key)
+            for value in condition_values(key, allowed):
+                if target is not None and target.kind in ("int", "float"):
+                    bad = not target.contains(value)
+                elif target is not None:
+                    bad = value not in possible
+                else:
+                    bad = RULES[key].problem(value) is not None
+                if bad:
+                    shown = (f"it takes {possible!r}" if target is not None and target.kind == "choice"
+                             else f"allowed: {RULES[key].problem(None) if target is None else f'[{target.lo}, {target.hi}]'}")
+                    sink.add(f"only_if value {value!r} can never hold for {key}; {shown}", at,
+                             at=where)
+        if dim.expr is not None:
+            for name in dim.expr.names:
+                if name not in leaves:
+                    sink.add(f"derive names {name!r}, which is not a key"
+                             f"{did_you_mean(name, leaves)}", at, at=at + ("derive",))
+    _check_fields_used(dims, fixed, sink)
+    _check_epochs(dims, fixed, sink)
+
+
+def _options(path: str, dims: dict, fixed: dict):
+    """(value, where) pairs for each value a key may take."""
+    dim = dims.get(path)
+    at = tuple(path.split("."))
+    if dim is not None and dim.kind == "choice":
+        return [(v, at + ("one_of", i)) for i, v in enumerate(dim.options)]
+    return [(get(fixed, path), at)]
+
+
+def _check_fields_used(dims: dict, fixed: dict, sink: Sink):
+    task = fixed["task"]
+    if task["source"] == "demo" and task["fields"]:
+        sink.add("task.fields is read for file data only; the demo has its own fields",
+                 ("task", "fields"))
+        return
+    if task["source"] != "demo":
+        roles = [f.get("role") for f in task["fields"].values() if isinstance(f, dict)]
+        if roles.count("target") != 1 or "input" not in roles:
+            sink.add("file data needs task.fields with exactly one target and at least one input",
+                     ("task", "fields"))
+            return
+        if any(not isinstance(f, dict) or f.get("kind") not in FIELD_KINDS
+               for f in task["fields"].values()):
+            return
+    fields = task_fields(task)
+    inputs = [n for n, f in fields.items() if f["role"] == "input"]
+    vectors = [n for n in inputs if fields[n]["kind"] == "vector"]
+    for value, at in _options("model.node_inputs", dims, fixed):
+        extra = [v for v in value if v not in inputs]
+        if extra:
+            sink.add(f"node_inputs {value!r} is not a subset of the input fields; unknown "
+                     f"{extra!r}; inputs: {', '.join(inputs)}", ("model", "node_inputs"), at=at)
+    for value, at in _options("model.node_attr_field", dims, fixed):
+        if value not in vectors:
+            sink.add(f"node_attr_field {value!r} must be a vector input field: "
+                     f"{', '.join(vectors) or '(none)'}{did_you_mean(value, vectors)}",
+                     ("model", "node_attr_field"), at=at)
+    for value, at in _options("model.edge_attrs.extra_vector", dims, fixed):
+        if value and value not in vectors:
+            sink.add(f"extra_vector {value!r} must be \"\" or a vector input field: "
+                     f"{', '.join(vectors) or '(none)'}", ("model", "edge_attrs", "extra_vector"),
+                     at=at)
+    needs = {"speed_jump": "velocity", "radial_velocity": "velocity", "pressure_jump": "pressure"}
+    for value, at in _options("model.edge_invariants", dims, fixed):
+        for name in value:
+            if name in needs and needs[name] not in inputs:
+                sink.add(f"edge invariant {name!r} needs an input field {needs[name]!r}; "
+                         f"inputs: {', '.join(inputs)}", ("model", "edge_invariants"), at=at)
+    if task["source"] == "demo":
+        left = set(task["demo"]["families"]) - set(task["split"]["hold_out"])
+        if not set(task["split"]["hold_out"]) <= set(task["demo"]["families"]) or not left:
+            sink.add(f"hold_out {task['split']['hold_out']!r} must be a subset of "
+                     f"task.demo.families that leaves at least one family",
+                     ("task", "split", "hold_out"))
+
+
+def _check_epochs(dims: dict, fixed: dict, sink: Sink):
+    epochs = _possible("training.epochs", dims, fixed)
+    if epochs is None:
+        return
+    pruner = fixed["search"]["pruner"]
+    if pruner["max_epochs"] > min(epochs):
+        sink.add(f"max_epochs {pruner['max_epochs']} exceeds training.epochs "
+                 f"({min(epochs)} at the least); the pruner budget must fit in a run",
+                 ("search", "pruner", "max_epochs"))
+    if pruner["min_epochs"] > pruner["max_epochs"]:
+        sink.add(f"min_epochs {pruner['min_epochs']} exceeds max_epochs {pruner['max_epochs']}",
+                 ("search", "pruner", "min_epochs"))
+    warmup = _possible("training.warmup_epochs", dims, fixed)
+    if warmup is not None and max(warmup) >= min(epochs):
+        sink.add(f"warmup_epochs {max(warmup)} must be below training.epochs ({min(epochs)})",
+                 ("training", "warmup_epochs"))

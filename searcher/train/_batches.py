@@ -1,0 +1,63 @@
+"""Graphs collated once into fixed batches, with the model's edge geometry cached.
+
+Collating (``Batch.from_data_list``) and computing spherical harmonics and radial bases cost
+as much as a small model's forward pass, so a training run does both once: the training
+graphs are split into fixed batches by one seeded permutation, and each epoch only shuffles
+the *order* of those batches (with the run's own ``torch.Generator``).  Batch membership is
+therefore fixed for a run; a different seed gives different batches.
+"""
+from __future__ import annotations
+
+import torch
+from torch_geometric.data import Batch
+
+__all__ = ["collate", "TrainBatches"]
+
+
+def _with_geometry(model: torch.nn.Module, batch):
+    # Models with an equivariant edge embedding expose ``.geometry``; baselines do not.
+    if getattr(model, "geometry", None) is not None:
+        from searcher.models import attach_geometry
+
+        attach_geometry(model, batch)
+    return batch
+
+
+def collate(model: torch.nn.Module, graphs, batch_size: int, *, device="cpu",
+            order=None) -> list:
+    """Collate ``graphs`` into batches of at most ``batch_size`` graphs on ``device``.
+
+    Args:
+        model: the model the batches are for (its geometry settings are cached on them).
+        graphs: list of ``Data``.
+        batch_size: graphs per batch (>= 1).
+        device: torch device of the batches.
+        order: optional permutation of ``range(len(graphs))``.
+    """
+    idx = list(range(len(graphs))) if order is None else [int(i) for i in order]
+    size = max(1, int(batch_size))
+    return [_with_geometry(model, Batch.from_data_list([graphs[i] for i in idx[k:k + size]])
+                           .to(device)) for k in range(0, len(idx), size)]
+
+
+class TrainBatches:
+    """Fixed training batches whose order is reshuffled every epoch.
+
+    Args:
+        model: the model being trained.
+        graphs: training graphs.
+        batch_size: graphs per batch.
+        generator: seeded ``torch.Generator`` (membership now, order every epoch).
+        device: torch device.
+    """
+
+    def __init__(self, model, graphs, batch_size: int, generator: torch.Generator,
+                 device="cpu") -> None:
+        order = torch.randperm(len(graphs), generator=generator).tolist()
+        self.batches = collate(model, graphs, batch_size, device=device, order=order)
+        self.generator = generator
+
+    def epoch(self) -> list:
+        """The batches in this epoch's order."""
+        perm = torch.randperm(len(self.batches), generator=self.generator).tolist()
+        return [self.batches[i] for i in perm]

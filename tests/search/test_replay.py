@@ -1,0 +1,79 @@
+"""Replay of Optuna pruners over known curves: bookkeeping, Hyperband rungs, crossing curves."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import optuna
+import pytest
+
+from searcher.search._replay import (compare_pruners, crossing_curves, format_replay_table,
+                                     good_mask, measure_call_cost, replay, replay_pruners)
+
+
+def test_no_pruning_spends_every_epoch():
+    curves, slow = crossing_curves(3, 4, epochs=12, seed=1)
+    r = replay(curves, optuna.pruners.NopPruner(), good=slow, seed=3)
+    assert r.epochs == r.epochs_full == sum(len(c) for c in curves)
+    assert r.epoch_ratio == 1.0 and r.best_ratio == 1.0 and r.pruned == 0
+    assert r.best == pytest.approx(min(c.min() for c in curves))
+    assert r.wrongly_pruned_rate == 0.0 and r.pruned_at == (None,) * 7
+    assert "study" not in r.to_dict()
+
+
+def test_crossing_curves_cross_and_default_good_group():
+    curves, slow = crossing_curves(seed=0)
+    early = np.array([c[2] for c in curves])
+    final = np.array([c.min() for c in curves])
+    # By construction: slow starters are worse early (epoch 3, in the median) and every one
+    # is better at the end (the curves cross).
+    assert np.median(early[slow]) > 10 * np.median(early[~slow])
+    assert final[slow].max() < final[~slow].min()
+    assert np.array_equal(good_mask(curves, decades=0.5), final <= final.min() * 10 ** 0.5)
+
+
+def test_curve_fit_cuts_fewer_good_curves_than_median():
+    curves, slow = crossing_curves(seed=0)
+    results = compare_pruners(curves, replay_pruners(30, min_epochs=5, warmup=4),
+                              good=slow, seed=0)
+    by = {r.pruner: r for r in results}
+    assert set(by) == {"none", "median", "hyperband", "curve_fit"}
+    assert by["curve_fit"].wrongly_pruned_rate <= by["median"].wrongly_pruned_rate
+    assert by["curve_fit"].epoch_ratio < 1.0
+    assert format_replay_table(results).count("\n") == 4
+
+
+def test_hyperband_prunes_only_at_its_rungs():
+    curves, slow = crossing_curves(3, 9, epochs=81, seed=2)
+    pruner = optuna.pruners.HyperbandPruner(min_resource=1, max_resource=81, reduction_factor=3)
+    r = replay(curves, pruner, good=slow, seed=0)
+    # Li et al., JMLR 2018: s_max = floor(log_3 81) = 4, so 5 brackets; Optuna computes
+    # floor(log_eta(max/min)) + 1 (its _hyperband.py).
+    assert pruner._n_brackets == 5
+    order = np.random.default_rng(0).permutation(len(curves))
+    assert r.pruned > 0
+    for trial, i in zip(r.study.trials, order):
+        bracket = pruner._get_bracket_id(r.study, trial)
+        # Bracket b is successive halving with min_early_stopping_rate b: rungs complete at
+        # min_resource * eta^(b + rung) epochs (Optuna _successive_halving.py; Li et al. r_i).
+        rungs = {3 ** (bracket + k) for k in range(5) if 3 ** (bracket + k) < 81}
+        assert r.pruned_at[i] is None or r.pruned_at[i] in rungs
+        assert (trial.state == optuna.trial.TrialState.PRUNED) == (r.pruned_at[i] is not None)
+
+
+def test_replay_is_deterministic_and_checks_shapes():
+    curves, slow = crossing_curves(3, 5, epochs=20, seed=4)
+    make = replay_pruners(20, min_epochs=5, warmup=4)["curve_fit"]
+    a = replay(curves, make(), good=slow, seed=1)
+    b = replay(curves, make(), good=slow, seed=1)
+    assert a.to_dict() == b.to_dict()
+    with pytest.raises(ValueError, match="one length"):
+        replay([np.ones(5), np.ones(6)], optuna.pruners.NopPruner())
+    with pytest.raises(ValueError, match="good"):
+        replay(curves, optuna.pruners.NopPruner(), good=np.ones(3, bool))
+
+
+def test_measure_call_cost_reports_positive_times():
+    cost = measure_call_cost(points=30, calls=3)
+    assert cost["points"] == 30 and cost["calls"] == 3
+    assert 0.0 < cost["median_ms"] <= cost["max_ms"] and math.isfinite(cost["max_ms"])
