@@ -121,7 +121,7 @@ def _markdown(res) -> str:
         rows += ["", f"**Space of {d['b']} against {d['a']}**", ""]
         rows += [f"- {kind}: " + ", ".join(e["name"] for e in entries)
                  for kind, entries in d["diff"].items() if entries] or ["- same space"]
-    rows += ["", *[f"> {w}" for w in res["warnings"]], "", _INDEPENDENCE, "", SAFETY]
+    rows += [""] + [f"> {w}\n" for w in res["warnings"]] + [_INDEPENDENCE, "", SAFETY]
     return "\n".join(rows) + "\n"
 
 
@@ -135,7 +135,7 @@ def _plots(res, out_dir: Path) -> list[str]:
                    "trials", "expected best validation loss", logx=True),
         plot_lines([(label(s), s[cost_key], s["expected_best"], None, None)
                     for s in res["studies"]], out_dir / "expected-best-compute.png",
-                   "expected best loss vs compute", cost_key.replace("expected_", "expected "),
+                   "expected best loss vs compute", "expected CPU-hours" if cost_key == "expected_cpu_hours" else "expected epochs",
                    "expected best validation loss", logx=True),
         plot_bars([s["study"] for s in res["studies"]], [s["hit_rate"] for s in res["studies"]],
                   out_dir / "hit-rates.png", f"share of trials at or below {res['target']:.3g}",

@@ -75,13 +75,14 @@ def space_diff(study_a, study_b) -> dict:
 def comparability_problems(study_a, study_b, hashes_a: set, hashes_b: set) -> list[Problem]:
     """Reasons why two studies' losses are not on the same footing (empty: comparable)."""
     problems = []
-    ta, tb = study_a.fixed()["task"], study_b.fixed()["task"]
-    for key in _TASK_KEYS:
+    ta, tb = (_flat({k: s.fixed()["task"].get(k) for k in _TASK_KEYS}, "task.")
+              for s in (study_a, study_b))
+    for key in sorted(set(ta) | set(tb)):
         if ta.get(key) != tb.get(key):
             problems.append(Problem(
-                f"studies must share task.{key} to be compared, but {study_a.name} has "
+                f"studies must share {key} to be compared, but {study_a.name} has "
                 f"{ta.get(key)!r} and {study_b.name} has {tb.get(key)!r}",
-                file=str(study_b.path), path=f"task.{key}"))
+                file=str(study_b.path), path=key))
     if hashes_a and hashes_b and hashes_a != hashes_b:
         problems.append(Problem(
             f"studies must have trained on the same data (trial data_hash), but "

@@ -162,6 +162,10 @@ def trait_rules(records: list[TrialRecord], in_group: np.ndarray, label: str,
             walk(t.children_left[node], choices + [f"{name} ≠ {value}"], bounds)
             walk(t.children_right[node], choices + [f"{name} = {value}"], bounds)
             return
+        if not math.isfinite(thr):   # sklearn's split on missing: inactive trials go right
+            walk(t.children_left[node], choices + [f"{name} active"], bounds)
+            walk(t.children_right[node], choices + [f"{name} inactive"], bounds)
+            return
         lo, hi = bounds.get(name, (None, None))
         walk(t.children_left[node], choices,
              {**bounds, name: (lo, thr if hi is None else min(hi, thr))})

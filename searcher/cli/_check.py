@@ -51,9 +51,15 @@ def _human(study, samples: list[dict], gates: list[dict]) -> None:
     if gates:
         print(f"\n{'sample':>6}  {'params':>8}  {'equiv. error f64':>16}  {'f32':>9}  passed  reason")
         for i, g in enumerate(gates, 1):
-            print(f"{i:>6}  {g.get('params', 0):>8}  {g.get('equivariance_error', float('nan')):>16.3e}"
-                  f"  {g.get('equivariance_error_f32', float('nan')):>9.2e}  "
+            print(f"{i:>6}  {_cell(g.get('params'), 'd'):>8}  "
+                  f"{_cell(g.get('equivariance_error'), '.3e'):>16}  "
+                  f"{_cell(g.get('equivariance_error_f32'), '.2e'):>9}  "
                   f"{'yes' if g.get('passed') else 'NO':>6}  {g.get('reason', '')}")
+
+
+def _cell(value, spec: str) -> str:
+    # a candidate that could not be built has no numbers; show a dash instead
+    return "-" if value is None else format(value, spec)
 
 
 def _get(cfg: dict, dotted: str):

@@ -3,7 +3,8 @@ stress sets, normalisation and the on-disk cache.
 
 Example:
     >>> import yaml, importlib.resources as r
-    >>> task = yaml.safe_load(r.files("searcher.spec").joinpath("defaults.yaml").read_text())["task"]
+    >>> text = r.files("searcher.spec").joinpath("defaults.yaml").read_text()
+    >>> task = yaml.safe_load(text)["task"]
     >>> sorted(describe_fields(task))
     ['anisotropy', 'pressure', 'pressure_gradient', 'velocity']
 """
@@ -11,11 +12,13 @@ from searcher.data._closure import (linear_anisotropy, make_realizable, pope_ter
                                     strain_rotation, szl_anisotropy, time_scale)
 from searcher.data._dataset import (GENERATOR_VERSION, Dataset, build_dataset, data_hash,
                                     describe_fields)
-from searcher.data._demo import DEMO_FIELDS, Placement, Sample, demo_sample, demo_samples, place_flow
+from searcher.data._demo import (DEMO_FIELDS, Placement, Sample, demo_sample, demo_samples,
+                                 place_flow)
 from searcher.data._files import SUFFIXES, data_files, declared_fields, read_samples, write_npz
 from searcher.data._flows import FAMILIES, draw_params, evaluate_flow
 from searcher.data._graphs import build_edges, graph_stats, to_data
-from searcher.data._kinds import FIELD_KINDS, Field, irreps_dim, rotate_irreps, to_cartesian, to_irreps
+from searcher.data._kinds import (FIELD_KINDS, Field, irreps_dim, rotate_irreps, to_cartesian,
+                                  to_irreps)
 from searcher.data._normaliser import Normaliser
 from searcher.data._splits import STRESS_KINDS, split_samples, stress_sets, transform_sample
 

@@ -92,10 +92,10 @@ def _to_graph(task_cfg: dict, s: Sample, norm: Normaliser, counters: dict):
         counters["edges_dropped"] += dropped
     if edges.shape[1] == 0:
         where = s.source if s.source != "demo" else f"demo sample {s.sample} ({s.family})"
-        raise UserError.single(f"graph of {where} has no edges at the chosen rule (rule={graph['rule']}, "
-                               f"radius={graph['radius']}, neighbours={graph['neighbours']}); "
-                               "raise task.graph.radius", file=s.source if s.source != "demo" else "",
-                               path="task.graph.radius")
+        raise UserError.single(
+            f"graph of {where} has no edges at the chosen rule (rule={graph['rule']}, "
+            f"radius={graph['radius']}, neighbours={graph['neighbours']}); raise task.graph.radius",
+            file=s.source if s.source != "demo" else "", path="task.graph.radius")
     counters["realizability_scaled"] += int(s.info.get("realizability_scaled", 0))
     values = {k: norm.apply(k, v) for k, v in s.fields.items()}
     return to_data(s.pos, edges, values, s.family, s.sample)
@@ -110,8 +110,11 @@ def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
     kept = [s for s in samples if s.family not in hold]
     held = [s for s in samples if s.family in hold]
     if len(kept) < 3:
+        source = task_cfg["source"]
         raise UserError.single(f"only {len(kept)} samples remain after hold_out (rule: at least "
-                               "3, one each for train, val and test)", path="task.split.hold_out")
+                               "3, one each for train, val and test; a folder of files gives one "
+                               "sample per file)", file="" if source == "demo" else str(source),
+                               path="task.split.hold_out" if held else "task.source")
     split = split_samples(list(range(len(kept))), task_cfg["split"]["fractions"],
                           task_cfg["split"]["seed"])
     norm = Normaliser.fit({k: f.irreps for k, f in fields.items()},
@@ -124,7 +127,8 @@ def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
     stats = {"samples": len(samples), "graphs": graph_stats(graphs),
              "split": {k: len(v) for k, v in split.items()},
              "stress": {k: len(v) for k, v in stress.items()}, "stress_notes": notes,
-             "families": sorted({s.family for s in kept}), "held_out": sorted({s.family for s in held}),
+             "families": sorted({s.family for s in kept}),
+             "held_out": sorted({s.family for s in held}),
              **counters}
     return Dataset(fields, graphs, split, stress, norm, digest, stats)
 
@@ -174,8 +178,9 @@ def _load_cache(path: Path, fields: dict[str, Field], digest: str) -> Dataset:
         meta = json.loads(str(z["meta"]))
         sets = {}
         for name, labels in meta["labels"].items():
-            sets[name] = [Data(**{a: torch.as_tensor(z[f"{name}|{i}|{a}"]) for a in _ATTRS + tuple(fields)},
-                               family=fam, sample=int(num)) for i, (fam, num) in enumerate(labels)]
+            sets[name] = [Data(**{a: torch.as_tensor(z[f"{name}|{i}|{a}"])
+                                  for a in _ATTRS + tuple(fields)}, family=fam, sample=int(num))
+                          for i, (fam, num) in enumerate(labels)]
     stress = {k.split(".", 1)[1]: v for k, v in sets.items() if k.startswith("stress.")}
     return Dataset(fields, sets["graphs"], meta["split"], stress,
                    Normaliser.from_dict(meta["normaliser"]), digest, meta["stats"])

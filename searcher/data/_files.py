@@ -131,7 +131,8 @@ def _field_values(path, f: Field, raw, n: int) -> np.ndarray:
     try:
         arr = np.asarray(pool[f.name], dtype=np.float64)
     except (TypeError, ValueError):
-        raise _err(path, f"field {f.name!r} is not numeric (dtype {pool[f.name].dtype})", key) from None
+        raise _err(path, f"field {f.name!r} is not numeric (dtype {pool[f.name].dtype})",
+                   key) from None
     if f.level == "graph" and (arr.ndim == 0 or arr.shape[0] != 1):
         arr = arr[None]
     rows = n if f.level == "node" else 1

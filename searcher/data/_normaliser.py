@@ -64,7 +64,7 @@ class Normaliser:
         if hasattr(like, "detach"):
             import torch
 
-            return (torch.as_tensor(mean, dtype=like.dtype), torch.as_tensor(scale, dtype=like.dtype))
+            return tuple(torch.as_tensor(v, dtype=like.dtype) for v in (mean, scale))
         return mean, scale
 
     def apply(self, name: str, values):

@@ -107,12 +107,16 @@ def gate_model(model: torch.nn.Module, fields: dict, *, seed: int = 0,
         seed: seed of the probe graph, its inputs and the rotations.
         tol: largest float64 error an equivariant model may show.
     """
-    geometry = getattr(model, "geometry", None)
+    with default_dtype(torch.float64):
+        return _gate(copy.deepcopy(model).to(torch.float64), fields, seed, tol)
+
+
+def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float) -> GateResult:
+    geometry = getattr(m64, "geometry", None)
     cutoff = geometry.radial.cutoff if geometry is not None else 1.0
     # Every edge inside the radial cutoff, so the radial features take part.
     graph = random_graph(fields, GATE_NODES, seed, radius=0.9 * cutoff, dtype=torch.float64)
-    m64 = copy.deepcopy(model).to(torch.float64)
-    m32 = copy.deepcopy(model).to(torch.float32)
+    m32 = copy.deepcopy(m64).to(torch.float32)
     with torch.random.fork_rng(devices=[]):
         torch.manual_seed(seed)  # e3nn draws its random transforms from torch's RNG
         with default_dtype(torch.float64):
@@ -120,8 +124,8 @@ def gate_model(model: torch.nn.Module, fields: dict, *, seed: int = 0,
             second = _scipy_error(m64, fields, graph, graph.graph_radius, seed)
         with default_dtype(torch.float32):
             err32 = _e3nn_error(m32, fields, graph, graph.graph_radius)
-    params = sum(p.numel() for p in model.parameters())
-    equivariant = bool(getattr(model, "equivariant", True))
+    params = sum(p.numel() for p in m64.parameters())
+    equivariant = bool(getattr(m64, "equivariant", True))
     worst = max(err64, second)
     if not equivariant:
         return GateResult(params, err64, err32, second, True,
@@ -144,4 +148,4 @@ def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
     with torch.random.fork_rng(devices=[]), default_dtype(torch.float64):
         torch.manual_seed(seed)
         model = build_model(model_cfg, fields, target)
-    return gate_model(model, fields, seed=seed, tol=tol)
+        return _gate(model, fields, seed, tol)

@@ -78,7 +78,7 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
     from searcher.report._rerun import retrain
     from searcher.report._tracking import DossierTracker
     from searcher.report._writers import FILES, plot_files, write_dossier
-    from searcher.search import open_store, public_config, tracking_uri
+    from searcher.search import open_store, public_config
     from searcher.train import pick_device
 
     started = now_utc()
@@ -92,7 +92,7 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
         analysis = analyze(study, store, scratch)
     candidates, notes = choose_finalists(study, read_trials(store), analysis,
                                          settings["finalists"])
-    tracker = DossierTracker(study, tracking_uri(fixed["tracking"]["uri"], study.output_dir))
+    tracker = DossierTracker(study)
     notes += [tracker.note] if tracker.note else []
     seed_list = [int(fixed["training"]["seed"]) + i for i in range(settings["seeds"])]
     settings["seed_list"] = seed_list

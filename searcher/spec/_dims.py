@@ -129,7 +129,7 @@ def _labels(options: list) -> tuple:
     return labels if len(set(labels)) == len(labels) else tuple(json.dumps(o) for o in options)
 
 
-def _range(raw, form: str, dotted: str, sink: Sink, path: tuple):
+def _range(raw, form: str, sink: Sink, path: tuple):
     pair = raw.get(form)
     where = path + (form,)
     number = _is_int if form == "whole" else _is_real
@@ -208,7 +208,7 @@ def parse_dimension(path: tuple, raw: dict, rule: Rule, default, sink: Sink) -> 
             sink.add(f"whole ranges are for whole-number keys; this key takes {rule.problem(None)}",
                      path, at=path + (form,))
             return None
-        bounds = _range(raw, form, dotted, sink, path)
+        bounds = _range(raw, form, sink, path)
         if bounds is None:
             return None
         dim.lo, dim.hi = bounds

@@ -33,7 +33,8 @@ def test_divergence_free_and_gradients_by_finite_differences(family):
     x = _points(family, params)
     u, g, p, gp = evaluate_flow(family, params, x)
     g_fd = _fd_gradient(lambda y: evaluate_flow(family, params, y)[0], x)
-    # Every demo field is divergence-free (REFERENCES.md, "check numerically by finite differences").
+    # Every demo field is divergence-free (REFERENCES.md: "check numerically by finite
+    # differences").
     np.testing.assert_allclose(np.trace(g_fd, axis1=1, axis2=2), 0, atol=1e-6)
     # Analytic G_ij = ∂u_i/∂x_j and ∇p agree with central differences (derived).
     np.testing.assert_allclose(g, g_fd, atol=1e-6)

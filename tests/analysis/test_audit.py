@@ -1,0 +1,50 @@
+"""Prune audit: stratified choice and classification of re-run curves."""
+from __future__ import annotations
+
+from collections import Counter
+
+import numpy as np
+import optuna
+import pytest
+
+from searcher.analysis import (choose_for_audit, classify_reruns, prune_audit, read_trials,
+                               wilson_interval)
+from searcher.analysis._synthetic import add_trial
+
+
+def _store(cuts):
+    store = optuna.create_study()
+    for cut in cuts:
+        add_trial(store, 0.5 * np.arange(1, cut + 1) ** -0.5, {"model.hidden.lmax": 1},
+                  "pruned")
+    add_trial(store, 0.5 * np.arange(1, 19) ** -0.5, {"model.hidden.lmax": 1}, "completed")
+    return store
+
+
+def test_stratified_by_pruning_epoch():
+    records = read_trials(_store([2] * 12 + [6] * 6 + [12] * 2))
+    chosen = choose_for_audit(records, 10)
+    # Proportional shares 6 / 3 / 1 (common practice: proportional stratified sampling).
+    assert Counter(r.pruned_at for r in chosen) == {2: 6, 6: 3, 12: 1}
+    assert all(r.outcome == "pruned" for r in chosen)
+    assert [r.number for r in chosen] == sorted(r.number for r in chosen)
+    # Every stratum gets one while n allows; never more than there are pruned trials.
+    assert Counter(r.pruned_at for r in choose_for_audit(records, 3)) == {2: 1, 6: 1, 12: 1}
+    assert len(choose_for_audit(records, 100)) == 20
+    assert choose_for_audit(records, 10) == chosen   # deterministic with the seed
+
+
+def test_classification_with_wilson_interval():
+    curves = [np.array([1.0, 0.01]), np.array([1.0, 0.5]), np.array([0.02, 0.004]),
+              np.array([np.nan, np.inf])]
+    res = classify_reruns(curves, threshold=0.01)
+    assert res["joined"] == 2 and res["reruns"] == 4 and res["fraction"] == 0.5
+    assert res["interval"] == pytest.approx(list(wilson_interval(2, 4)))
+    assert res["joined_each"] == [True, False, True, False]
+
+
+def test_audit_needs_a_good_group():
+    store = _store([2, 6])
+    res = prune_audit(None, store, {"good_group": None}, 2)
+    assert res["status"] == "nothing_to_audit" and res["chosen"] == [0, 1]
+    assert "no distinct good group" in res["message"]

@@ -1,0 +1,109 @@
+"""compare(): self-comparison, refusals, space differences, the CLI."""
+from __future__ import annotations
+
+import json
+
+import optuna
+import pytest
+
+from searcher.analysis import compare, space_diff
+from searcher.analysis._synthetic import planted_study
+from searcher.cli import main
+from searcher.errors import UserError
+from searcher.spec import load_study
+
+BASE = """study:
+  name: {name}
+model:
+  hidden:
+    lmax: {lmax}
+  radial:
+    basis: {basis}
+training:
+  learning_rate: {{real: [0.0003, 0.03], log: true}}
+search:
+  sampler:
+    kind: {sampler}
+output:
+  folder: {out}
+"""
+
+
+def _study(tmp_path, name, *, lmax="{whole: [1, 3]}", basis="{one_of: [bessel, gaussian]}",
+           sampler="tpe", extra="", seed=0):
+    path = tmp_path / f"{name}.yaml"
+    path.write_text(BASE.format(name=name, lmax=lmax, basis=basis, sampler=sampler,
+                                out=tmp_path / f"out-{name}") + extra)
+    study = load_study(path)
+    journal = study.output_dir / "study.journal"
+    journal.parent.mkdir(parents=True, exist_ok=True)
+    store = optuna.storages.JournalStorage(optuna.storages.journal.JournalFileBackend(str(journal)))
+    opt, _ = planted_study(n=40, rare=3, seed=seed, name=name, storage=store)
+    return study, opt
+
+
+def test_self_comparison_shows_no_clear_difference(tmp_path):
+    a = _study(tmp_path, "alpha")
+    res = compare([a, a], out_dir=tmp_path / "cmp")
+    assert res["verdicts"][0]["text"].startswith("no clear difference")
+    lo, _, hi = res["verdicts"][0]["ratio_interval"]
+    assert lo < 1 < hi
+    assert res["target"] == pytest.approx(10 * res["studies"][0]["best"])   # best of all × 10
+    s = res["studies"][0]
+    assert s["hit_interval"][0] <= s["hit_rate"] <= s["hit_interval"][1]
+    assert all(v == [] for v in res["space_diffs"][0]["diff"].values())
+    for name in ("expected-best-trials.png", "expected-best-compute.png", "hit-rates.png",
+                 "compare.md", "compare.json"):
+        assert (tmp_path / "cmp" / name).stat().st_size > 0
+    assert "independent draws" in res["markdown"]
+
+
+def test_space_diff_kinds(tmp_path):
+    a, _ = _study(tmp_path, "alpha")
+    b, _ = _study(tmp_path, "beta", lmax="{whole: [2, 3]}", basis="{one_of: [bessel, gaussian, cosine]}",
+                  extra="  \n", seed=1)
+    c, _ = _study(tmp_path, "gamma", lmax="2", basis="bessel", seed=2)
+    ab, ac = space_diff(a, b), space_diff(a, c)
+    assert [e["name"] for e in ab["narrowed"]] == ["model.hidden.lmax"]
+    assert [e["name"] for e in ab["widened"]] == ["model.radial.basis"]
+    assert {e["name"] for e in ac["removed"]} == {"model.hidden.lmax", "model.radial.basis"}
+    assert {e["name"] for e in space_diff(c, a)["added"]} == {"model.hidden.lmax",
+                                                              "model.radial.basis"}
+
+
+def test_random_control_is_marked(tmp_path):
+    a = _study(tmp_path, "alpha")
+    r = _study(tmp_path, "rand", sampler="random", seed=1)
+    res = compare([a, r])
+    assert [s["random_control"] for s in res["studies"]] == [False, True]
+    assert "(random control)" in res["markdown"]
+
+
+def test_other_task_refused_unless_forced(tmp_path):
+    a = _study(tmp_path, "alpha")
+    other = _study(tmp_path, "other", extra="task:\n  split:\n    seed: 3\n", seed=1)
+    with pytest.raises(UserError) as err:
+        compare([a, other])
+    assert err.value.problems[0].path == "task.split.seed"
+    assert "must share" in str(err.value) and "--force" in str(err.value)
+    res = compare([a, other], force=True)
+    assert res["warnings"] and "task.split.seed" in res["warnings"][0]
+
+
+def test_cli_compare_and_analyze(tmp_path, capsys):
+    a, _ = _study(tmp_path, "alpha")
+    _study(tmp_path, "other", extra="task:\n  split:\n    seed: 3\n", seed=1)
+    pa, po = str(tmp_path / "alpha.yaml"), str(tmp_path / "other.yaml")
+    assert main(["compare", pa, po]) == 2
+    assert "task.split.seed" in capsys.readouterr().err
+    assert main(["compare", pa, pa, "--json", "--out", str(tmp_path / "c")]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["verdicts"][0]["text"].startswith("no clear difference")
+    assert main(["analyze", pa, "--json"]) == 0
+    res = json.loads(capsys.readouterr().out)
+    assert res["study"] == "alpha" and (a.output_dir / "analysis" / "analysis.json").exists()
+    missing = tmp_path / "none.yaml"
+    missing.write_text(BASE.format(name="none", lmax=1, basis="bessel", sampler="tpe",
+                                   out=tmp_path / "out-none"))
+    assert main(["analyze", str(missing)]) == 2
+    assert "journal must exist" in capsys.readouterr().err

@@ -1,0 +1,123 @@
+"""The anisotropy target: Pope-basis identities, SZL model, realizability, invariances."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy.spatial.transform import Rotation
+
+from searcher.data import (FAMILIES, Placement, demo_sample, draw_params, linear_anisotropy,
+                           make_realizable, place_flow, pope_terms, strain_rotation,
+                           szl_anisotropy, time_scale, to_cartesian)
+
+RNG = np.random.default_rng(0)
+
+
+def _gradients(n=8):
+    g = RNG.normal(size=(n, 3, 3))
+    return g - np.trace(g, axis1=1, axis2=2)[:, None, None] * np.eye(3) / 3   # incompressible
+
+
+def test_pope_terms_symmetric_and_traceless():
+    # Pope (1975): every integrity-basis tensor is symmetric and traceless.
+    s, w = strain_rotation(_gradients())
+    t = pope_terms(s, w)
+    np.testing.assert_allclose(t, np.swapaxes(t, -1, -2), atol=1e-13)
+    np.testing.assert_allclose(np.trace(t, axis1=-2, axis2=-1), 0, atol=1e-13)
+
+
+def test_strain_rotation_convention():
+    # G_ij = ∂u_i/∂x_j; S symmetric, Ω antisymmetric, S + Ω = G (definitions, derived).
+    g = _gradients()
+    s, w = strain_rotation(g)
+    np.testing.assert_allclose(s + w, g, atol=1e-15)
+    np.testing.assert_allclose(w, -np.swapaxes(w, 1, 2), atol=1e-15)
+
+
+def test_linear_model_log_layer():
+    # Log-layer equilibrium (REFERENCES.md, common practice): S k/ε = 1/√C_μ with C_μ = 0.09
+    # gives b12 = −0.15 in simple shear u = (γ y, 0, 0).
+    g = np.zeros((1, 3, 3))
+    g[0, 0, 1] = 1.0
+    s, _ = strain_rotation(g)
+    b = linear_anisotropy(s / np.sqrt(0.09), 0.09)
+    assert b[0, 0, 1] == pytest.approx(-0.15, abs=1e-12)
+
+
+def test_time_scale_gives_equilibrium_shear_rate():
+    # Simple shear has s = w = γ, so the rule τ = c_τ/(s + w) gives s̄ = τ s = c_τ/2 (derived).
+    g = np.zeros((1, 3, 3))
+    g[0, 0, 1] = 2.5
+    s, w = strain_rotation(g)
+    tau = time_scale(s, w)
+    assert tau[0] * 2.5 == pytest.approx(3.33 / 2, rel=1e-10)
+
+
+def test_szl_anisotropy_symmetric_traceless_realizable_and_scale_free():
+    # b symmetric, traceless, eigenvalues in [−1/3, 2/3] (Schumann 1977); the time-scale
+    # rule makes b independent of the flow's speed scale (derived: degree 0 in G).
+    g = 4 * _gradients(64)
+    b, _ = make_realizable(szl_anisotropy(g))
+    np.testing.assert_allclose(b, np.swapaxes(b, 1, 2), atol=1e-14)
+    np.testing.assert_allclose(np.trace(b, axis1=1, axis2=2), 0, atol=1e-13)
+    eig = np.linalg.eigvalsh(b)
+    assert eig.min() >= -1 / 3 - 1e-12 and eig.max() <= 2 / 3 + 1e-12
+    np.testing.assert_allclose(szl_anisotropy(7.0 * g), szl_anisotropy(g), atol=1e-13)
+
+
+def test_make_realizable_scales_toward_isotropy():
+    # An eigenvalue −0.5 < −1/3 is scaled by λ = (1/3)/0.5 (Lumley-triangle bound, Schumann 1977).
+    b = np.diag([-0.5, 0.25, 0.25])[None]
+    out, count = make_realizable(b)
+    assert count == 1
+    np.testing.assert_allclose(out[0], b[0] * (2 / 3), atol=1e-15)
+
+
+@pytest.mark.parametrize("family", list(FAMILIES))
+def test_rigid_placement_covariance(family):
+    # u'(x) = R u(Rᵀ(x − c)) ⇒ ∇u' = R ∇u Rᵀ and b' = R b Rᵀ (REFERENCES.md), for proper and
+    # improper R (scipy Rotation.random).
+    params = draw_params(family, np.random.default_rng(2))
+    body = np.random.default_rng(3).uniform(-1, 1, size=(10, 3)) + (family == "sphere") * 2.0
+    for improper in (False, True):
+        r = Rotation.random(random_state=4).as_matrix() @ np.diag([1, 1, -1 if improper else 1])
+        c = np.array([0.3, -0.2, 0.1])
+        u0, g0, p0, gp0 = place_flow(family, params, Placement(np.eye(3), np.zeros(3)), body)
+        u1, g1, p1, gp1 = place_flow(family, params, Placement(r, c), body @ r.T + c)
+        np.testing.assert_allclose(u1, u0 @ r.T, atol=1e-12)
+        np.testing.assert_allclose(g1, np.einsum("ik,nkl,jl->nij", r, g0, r), atol=1e-11)
+        np.testing.assert_allclose(p1, p0, atol=1e-12)
+        np.testing.assert_allclose(gp1, gp0 @ r.T, atol=1e-11)
+        b0 = szl_anisotropy(g0)
+        np.testing.assert_allclose(szl_anisotropy(g1), np.einsum("ik,nkl,jl->nij", r, b0, r),
+                                   atol=1e-12)
+
+
+def test_galilean_invariance():
+    # A uniform added velocity leaves S, Ω and hence b unchanged (REFERENCES.md); checked on
+    # gradients taken by finite differences of the shifted field.
+    params = draw_params("burgers", np.random.default_rng(1))
+    place = Placement(np.eye(3), np.zeros(3))
+    x = np.random.default_rng(2).uniform(-1, 1, size=(6, 3))
+    drift = np.array([3.0, -1.0, 2.0])
+
+    def grad_fd(shift):
+        cols = []
+        for j in range(3):
+            e = np.zeros(3)
+            e[j] = 1e-6
+            cols.append(((place_flow("burgers", params, place, x + e)[0] + shift)
+                         - (place_flow("burgers", params, place, x - e)[0] + shift)) / 2e-6)
+        return np.stack(cols, -1)
+
+    np.testing.assert_allclose(szl_anisotropy(grad_fd(drift)), szl_anisotropy(grad_fd(0.0)),
+                               atol=1e-7)
+
+
+def test_every_generated_sample_is_realizable(default_task):
+    # Schumann (1977): eigenvalues of b in [−1/3, 2/3]; b symmetric and traceless by construction.
+    demo = dict(default_task["demo"], probes=16)
+    for i in range(int(demo["samples"])):
+        b = to_cartesian("traceless_symmetric_tensor", demo_sample(demo, i).fields["anisotropy"])
+        eig = np.linalg.eigvalsh(b)
+        assert eig.min() >= -1 / 3 - 1e-12 and eig.max() <= 2 / 3 + 1e-12, i
+        np.testing.assert_allclose(np.trace(b, axis1=1, axis2=2), 0, atol=1e-14)

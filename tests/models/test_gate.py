@@ -1,0 +1,129 @@
+"""The equivariance gate over a sample of the model space, baselines, a broken block."""
+from __future__ import annotations
+
+import pytest
+import torch
+from e3nn import o3
+
+from searcher.models import build_model, gate_model, run_gate
+from searcher.testing import assert_gate, make_fields, model_config
+
+DEMO = make_fields()  # the demo's fields: velocity, pressure, pressure_gradient → anisotropy
+NODE = make_fields({"velocity": ("vector", "input", "node"),
+                    "pressure": ("scalar", "input", "node"),
+                    "pressure_gradient": ("vector", "input", "node"),
+                    "stress": ("symmetric_tensor", "target", "node")})  # 0e+2e
+GRAPH_VECTOR = make_fields({"velocity": ("vector", "input", "node"),
+                            "pressure": ("scalar", "input", "node"),
+                            "drag": ("vector", "target", "graph")})
+GRAPH_SCALAR = make_fields({"velocity": ("vector", "input", "node"),
+                            "pressure": ("scalar", "input", "node"),
+                            "swirl": ("pseudoscalar", "input", "node"),
+                            "energy": ("scalar", "target", "graph")})
+TINY = {"hidden.multiplicity": 2, "layers": 1, "radial.count": 4, "width": 8}
+
+# ~30 points across the space: every radial basis, norm, node-attribute mode and invariant,
+# both families, lmax up to 3, both parities, node target 0e+2e, graph targets 1o and 0e.
+CASES = [
+    ("steerable", {}, DEMO, "anisotropy"),
+    ("gated", {}, NODE, "stress"),
+    ("steerable", {"radial.basis": "gaussian"}, NODE, "stress"),
+    ("steerable", {"radial.basis": "cosine", "radial.envelope": "cosine"}, NODE, "stress"),
+    ("gated", {"radial.basis": "smooth_finite"}, NODE, "stress"),
+    ("gated", {"radial.basis": "fourier", "radial.envelope": "cosine"}, NODE, "stress"),
+    ("steerable", {"norm": "batch"}, NODE, "stress"),
+    ("steerable", {"norm": "instance"}, NODE, "stress"),
+    ("gated", {"norm": "batch"}, NODE, "stress"),
+    ("gated", {"norm": "instance", "layers": 2}, NODE, "stress"),
+    ("steerable", {"hidden.lmax": 2, "edge_attrs.lmax": 2}, NODE, "stress"),
+    ("gated", {"hidden.lmax": 3, "edge_attrs.lmax": 3, "hidden.taper": "tapered"}, NODE,
+     "stress"),
+    ("steerable", {"hidden.lmax": 3, "edge_attrs.lmax": 1, "hidden.multiplicity": 1}, NODE,
+     "stress"),
+    ("steerable", {"hidden.parity": "both"}, NODE, "stress"),
+    ("gated", {"hidden.parity": "both", "hidden.taper": "balanced", "width": 4}, NODE,
+     "stress"),
+    ("steerable", {"node_attrs": "field"}, NODE, "stress"),
+    ("steerable", {"node_attrs": "both"}, NODE, "stress"),
+    ("gated", {"node_attrs": "none"}, NODE, "stress"),
+    ("gated", {"node_attrs": "field", "edge_attrs.extra_vector": "pressure_gradient"}, NODE,
+     "stress"),
+    ("steerable", {"edge_attrs.extra_vector": "velocity"}, NODE, "stress"),
+    ("steerable", {"edge_invariants": ["distance", "speed_jump", "pressure_jump",
+                                       "radial_velocity"]}, NODE, "stress"),
+    ("gated", {"edge_invariants": ["radial_velocity", "distance", "speed_jump"]}, NODE,
+     "stress"),
+    ("steerable", {"edge_invariants": []}, NODE, "stress"),
+    ("steerable", {"aggregate": "sum", "activation": "tanh"}, NODE, "stress"),
+    ("gated", {"aggregate": "mean", "activation": "gelu", "residual": False}, NODE,
+     "stress"),
+    ("steerable", {"activation": "softplus", "node_inputs": []}, NODE, "stress"),
+    ("gated", {"activation": "relu", "node_inputs": ["pressure"]}, NODE, "stress"),
+    ("steerable", {"node_inputs": ["velocity", "pressure"]}, GRAPH_VECTOR, "drag"),
+    ("gated", {"node_inputs": ["velocity"], "norm": "instance"}, GRAPH_VECTOR, "drag"),
+    ("steerable", {"node_inputs": ["velocity", "swirl"], "hidden.parity": "both"},
+     GRAPH_SCALAR, "energy"),
+    ("gated", {"node_inputs": ["pressure", "swirl"], "hidden.irreps": "3x0e+2x0o+2x1o+1x1e"},
+     GRAPH_SCALAR, "energy"),
+]
+
+
+@pytest.mark.parametrize("family,overrides,fields,target", CASES,
+                         ids=[f"{i}-{c[0]}" for i, c in enumerate(CASES)])
+def test_candidates_pass_gate_in_float64(family, overrides, fields, target):
+    cfg = model_config({**TINY, "family": family, **overrides})
+    result = run_gate(cfg, fields, target, seed=1)
+    # Tolerance 1e-9 in float64: e3nn's own test default (e3nn.util.test.FLOAT_TOLERANCE).
+    assert result.passed, result.reason
+    assert result.equivariant and result.equivariance_error < 1e-9
+    assert result.second_check_error < 1e-9
+    # float32 is reported, not gated: single precision rounding (~1e-7 relative) only.
+    assert 0 < result.equivariance_error_f32 < 1e-2
+    assert result.params == sum(p.numel() for p in build_model(cfg, fields, target).parameters())
+
+
+@pytest.mark.parametrize("family", ["node_mlp", "coord_mlp"])
+def test_baselines_are_measured_not_rejected(family):
+    result = run_gate(model_config({**TINY, "family": family}), DEMO, "anisotropy")
+    assert result.passed and not result.equivariant
+    assert result.equivariance_error > 1e-2 and result.second_check_error > 1e-2
+    assert result.to_dict()["reason"].startswith("baseline")
+
+
+class _VectorBias(torch.nn.Module):
+    """A deliberately broken block: a constant added to the 1o part of the output."""
+
+    def __init__(self, model):
+        super().__init__()
+        self.model, self.irreps_in, self.irreps_out = model, model.irreps_in, model.irreps_out
+        self.bias = torch.nn.Parameter(torch.zeros(model.irreps_out.dim))
+        with torch.no_grad():
+            for (mul, ir), s in zip(model.irreps_out, model.irreps_out.slices()):
+                if ir.l > 0:
+                    self.bias[s] = 0.1
+
+    def forward(self, data):
+        return self.model(data) + self.bias
+
+
+def test_broken_block_is_caught():
+    model = _VectorBias(build_model(model_config({**TINY, "family": "gated"}), DEMO,
+                                    "anisotropy"))
+    result = gate_model(model, DEMO)
+    assert not result.passed and result.equivariant
+    assert result.equivariance_error > 1e-3 and "exceeds" in result.reason
+    with pytest.raises(AssertionError):
+        assert_gate(model, DEMO)
+
+
+def test_assert_gate_wraps_e3nn():
+    errors = assert_gate(model_config({**TINY, "family": "steerable"}), DEMO, "anisotropy")
+    assert set(errors) == {(0, False), (0, True), (1, False), (1, True)}
+
+
+def test_gate_is_deterministic():
+    cfg = model_config({**TINY, "family": "gated"})
+    a = run_gate(cfg, DEMO, "anisotropy", seed=3).to_dict()
+    b = run_gate(cfg, DEMO, "anisotropy", seed=3).to_dict()
+    assert a == b
+    assert o3.Irreps(NODE["stress"].irreps) == o3.Irreps("0e+2e")  # symmetric 3x3 = 0e + 2e (REFERENCES.md)
