@@ -76,7 +76,7 @@ def prune_audit(study_obj, optuna_study, analysis: dict, n: int, seed: int = 0) 
         n: trials to re-run.
 
     Returns:
-        ``{"status": "done" | "not_wired" | "nothing_to_audit", "chosen": [numbers],
+        ``{"status": "done" | "nothing_to_audit", "chosen": [numbers],
         "message": str, ...}`` plus the fields of :func:`classify_reruns` when done.
     """
     chosen = choose_for_audit(read_trials(optuna_study), n, seed)
@@ -89,13 +89,8 @@ def prune_audit(study_obj, optuna_study, analysis: dict, n: int, seed: int = 0) 
     if not good:
         out["message"] = "no distinct good group, so re-runs could not be classified"
         return out
-    try:
-        from searcher.search import rerun_config
-    except ImportError:
-        out["status"] = "not_wired"
-        out["message"] = ("the search layer does not provide rerun_config yet; "
-                          f"trials chosen for the audit: {out['chosen']}")
-        return out
+    from searcher.search import rerun_config   # training lives there; import only when used
+
     runs = [rerun_config(study_obj, rec.config, f"audit-{rec.number}") for rec in chosen]
     out.update(classify_reruns([np.asarray(r["curve"], dtype=float) for r in runs],
                                good["threshold"]))

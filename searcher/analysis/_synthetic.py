@@ -12,10 +12,9 @@ import optuna
 from optuna.distributions import (CategoricalDistribution, FloatDistribution,
                                   IntDistribution)
 
-__all__ = ["EPOCHS", "KINDS", "planted_curves", "planted_study", "add_trial"]
+__all__ = ["EPOCHS", "planted_curves", "planted_study", "add_trial"]
 
 EPOCHS = 18
-KINDS = ("deep", "steady", "stall", "erratic", "blowup")
 DISTRIBUTIONS = {
     "model.hidden.lmax": IntDistribution(1, 3),
     "model.radial.basis": CategoricalDistribution(["bessel", "gaussian", "cosine"]),
@@ -66,13 +65,14 @@ def _params(rng, good):
     return params
 
 
-def add_trial(study, curve, params, outcome, *, cpu=1.0, data_hash="d0", study_hash="s0"):
+def add_trial(study, curve, params, outcome, *, cpu=1.0, data_hash="d0", study_hash="s0",
+              config=None):
     """Add one finished trial following the record contract."""
     curve = np.asarray(curve, dtype=float)
     best = float(np.nanmin(curve)) if curve.size else None
     state = {"completed": optuna.trial.TrialState.COMPLETE,
              "pruned": optuna.trial.TrialState.PRUNED}.get(outcome, optuna.trial.TrialState.FAIL)
-    attrs = {"config": {}, "study_hash": study_hash, "data_hash": data_hash,
+    attrs = {"config": config or {}, "study_hash": study_hash, "data_hash": data_hash,
              "outcome": outcome, "reason": "", "best_value": best,
              "best_epoch": int(np.nanargmin(curve)) + 1 if curve.size else 0,
              "epochs": int(curve.size), "cpu_seconds": cpu * curve.size, "gate": {}, "cost": {},

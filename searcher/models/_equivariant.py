@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import torch
-from e3nn import o3
 
 from searcher.errors import UserError
 
@@ -61,7 +60,3 @@ class EquivariantModel(FieldModel):
             update = layer(h, ctx)
             h = norm(h + update if self.residual else update, ctx)
         return self.head(h, ctx)
-
-    @property
-    def irreps_hidden(self) -> o3.Irreps:
-        return self.hidden

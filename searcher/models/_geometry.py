@@ -18,7 +18,8 @@ from searcher.errors import UserError
 
 from ._radial import RadialEmbedding
 
-__all__ = ["Geometry", "EdgeContext", "attach_geometry", "graph_batch", "EDGE_INVARIANTS", "NODE_ATTRS"]
+__all__ = ["Geometry", "EdgeContext", "attach_geometry", "graph_batch", "EDGE_INVARIANTS",
+           "NODE_ATTRS"]
 
 EDGE_INVARIANTS = ("distance", "speed_jump", "pressure_jump", "radial_velocity")
 NODE_ATTRS = ("mean_edge", "field", "both", "none")

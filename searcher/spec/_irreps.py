@@ -28,7 +28,7 @@ DEMO_FIELDS = {
     "velocity": {"kind": "vector", "role": "input", "level": "node"},
     "pressure": {"kind": "scalar", "role": "input", "level": "node"},
     "pressure_gradient": {"kind": "vector", "role": "input", "level": "node"},
-    "anisotropy": {"kind": "symmetric_tensor", "role": "target", "level": "node"},
+    "anisotropy": {"kind": "traceless_symmetric_tensor", "role": "target", "level": "node"},
 }
 
 EQUIVARIANT_FAMILIES = ("steerable", "gated")

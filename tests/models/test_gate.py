@@ -126,4 +126,5 @@ def test_gate_is_deterministic():
     a = run_gate(cfg, DEMO, "anisotropy", seed=3).to_dict()
     b = run_gate(cfg, DEMO, "anisotropy", seed=3).to_dict()
     assert a == b
-    assert o3.Irreps(NODE["stress"].irreps) == o3.Irreps("0e+2e")  # symmetric 3x3 = 0e + 2e (REFERENCES.md)
+    # symmetric 3x3 = 0e + 2e (REFERENCES.md)
+    assert o3.Irreps(NODE["stress"].irreps) == o3.Irreps("0e+2e")

@@ -35,7 +35,8 @@ def test_field_kinds_match_cartesian_tensors():
 
 def test_demo_fields():
     fields = task_fields({"source": "demo", "fields": {}})
-    assert fields["anisotropy"] == {"kind": "symmetric_tensor", "irreps": "0e+2e",
+    # b = <uu>/(2k) - I/3 is traceless by construction (definition in ../shared/REFERENCES.md), so only 2e remains.
+    assert fields["anisotropy"] == {"kind": "traceless_symmetric_tensor", "irreps": "2e",
                                     "role": "target", "level": "node"}
     assert [n for n, f in fields.items() if f["role"] == "input"] == \
         ["velocity", "pressure", "pressure_gradient"]

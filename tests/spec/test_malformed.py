@@ -36,7 +36,7 @@ EXPECTED = {
     "missing_base.yaml": [(5, 5, "extends", "base file 'bases/no-such-base.yaml' not found")],
     "object_tag.yaml": [(3, 12, "study.summary", "python/object/apply:os.system' is not allowed")],
     "bad_name.yaml": [(3, 9, "study.name", "letters, digits, '-' and '_'")],
-    "unreachable_order.yaml": [(6, 11, "model.hidden.lmax", "'anisotropy' (0e+2e) is unreachable: 2e")],
+    "unreachable_order.yaml": [(6, 11, "model.hidden.lmax", "'anisotropy' (2e) is unreachable: 2e")],
     "unreachable_parity.yaml": [(11, 13, "model.hidden.parity", "set model.hidden.parity: both")],
     "node_inputs_subset.yaml": [(5, 38, "model.node_inputs", "not a subset of the input fields")],
     "node_attr_not_vector.yaml": [(5, 20, "model.node_attr_field", "must be a vector input field")],
