@@ -163,6 +163,9 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
             errors: list = []
 
             def body() -> None:
+                import torch
+
+                torch.set_num_threads(1)
                 try:
                     worker_loop(args[0], lock, stop_event.is_set)
                 except BaseException as err:  # reported by the calling thread

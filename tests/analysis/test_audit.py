@@ -48,3 +48,38 @@ def test_audit_needs_a_good_group():
     res = prune_audit(None, store, {"good_group": None}, 2)
     assert res["status"] == "nothing_to_audit" and res["chosen"] == [0, 1]
     assert "no distinct good group" in res["message"]
+
+
+TINY = """study:
+  name: tiny
+task:
+  demo: {{samples: 8, probes: 12, families: [abc, strain]}}
+  split: {{hold_out: [], stress: []}}
+model:
+  hidden: {{multiplicity: 2}}
+  layers: 1
+  width: 8
+training:
+  epochs: 2
+search:
+  pruner: {{kind: none, max_epochs: 2}}
+output:
+  folder: {out}
+"""
+
+
+def test_audit_reruns_through_the_search_layer(tmp_path):
+    from searcher.spec import load_study
+
+    path = tmp_path / "tiny.yaml"
+    path.write_text(TINY.format(out=tmp_path / "out"))
+    study = load_study(path)
+    store = optuna.create_study()
+    for _ in range(2):
+        add_trial(store, [5.0], {"model.hidden.lmax": 1}, "pruned", config=study.fixed())
+    res = prune_audit(study, store, {"good_group": {"label": "converges deep",
+                                                    "threshold": 4.0}}, 1)
+    assert res["status"] == "done" and res["reruns"] == 1 and len(res["chosen"]) == 1
+    assert np.isfinite(res["best"][0])
+    assert res["joined_each"] == [res["best"][0] <= 4.0]
+    assert res["interval"] == pytest.approx(list(wilson_interval(res["joined"], 1)))

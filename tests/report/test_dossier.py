@@ -1,0 +1,68 @@
+"""The dossier of a real (tiny) searched study: content, files and MLflow child runs."""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from searcher.report import BASELINES, RERUN_ROLE, SECTION_TITLES
+
+STRESS = {"rotated", "reflected", "translated", "unseen_family", "denser", "sparser"}
+
+
+def test_json_holds_the_contracted_keys(dossier):
+    study, content = dossier
+    folder = Path(content["folder"])
+    saved = json.loads((folder / "dossier.json").read_text())
+    for key in ("finalists", "p_a_beats_b", "pick", "files", "cautions", "provenance"):
+        assert key in saved
+    for fin in saved["finalists"]:
+        assert {"config", "seeds", "metrics", "stress", "equivariance_error"} <= set(fin)
+        assert [s["seed"] for s in fin["seeds"]] == [0, 1]
+        assert set(fin["stress"]) == STRESS
+        assert fin["cost"]["params"] > 0 and fin["metrics"]["cpu_seconds"]["mean"] >= 0
+    assert saved["finalists"][-1]["role"] == "control"
+    assert saved["finalists"][-1]["config"]["model"]["family"] in BASELINES
+    assert saved["pick"]["label"] in {f["label"] for f in saved["finalists"]}
+    assert saved["pick"]["reasons"] and saved["pick"]["would_change"]
+
+
+def test_every_written_file_exists(dossier):
+    _, content = dossier
+    folder = Path(content["folder"])
+    for key, name in content["files"].items():
+        for rel in name if isinstance(name, list) else [name]:
+            assert (folder / rel).is_file(), (key, rel)
+    md = (folder / "dossier.md").read_text()
+    # Same sections, same order, in Markdown as in HTML.
+    positions = [md.index(f"## {title}") for title in SECTION_TITLES.values()]
+    assert positions == sorted(positions)
+
+
+def test_cautions_and_provenance(dossier):
+    study, content = dossier
+    text = " ".join(content["cautions"])
+    assert "validated against experiments or trusted simulations" in text
+    assert "local codes and licensed engineering practice prevail" in text.lower()
+    prov = content["provenance"]
+    assert prov["study_hash"] == study.hash and len(prov["data_hash"]) >= 16
+    assert prov["packages"]["torch"].startswith("2.") and prov["host"]
+
+
+def test_reruns_are_child_runs_of_the_study(dossier):
+    from mlflow import MlflowClient
+
+    from searcher.search import tracking_uri
+
+    study, content = dossier
+    client = MlflowClient(tracking_uri=tracking_uri("", study.output_dir))
+    exp = client.get_experiment_by_name(study.name)
+    parent = client.search_runs([exp.experiment_id],
+                                filter_string="tags.`searcher.role` = 'study'")[0]
+    reruns = client.search_runs([exp.experiment_id],
+                                filter_string=f"tags.`searcher.role` = '{RERUN_ROLE}'")
+    expected = sum(len(f["seeds"]) for f in content["finalists"])
+    assert len(reruns) == expected
+    assert {r.data.tags["mlflow.parentRunId"] for r in reruns} == {parent.info.run_id}
+    ids = {s["mlflow_run_id"] for f in content["finalists"] for s in f["seeds"]}
+    assert ids == {r.info.run_id for r in reruns}
+    assert all("test_error" in r.data.metrics for r in reruns)
