@@ -129,13 +129,15 @@ def _plots(res, out_dir: Path) -> list[str]:
     cost_key = "expected_cpu_hours" if all(
         s["cost_unit"] == "CPU-hours" for s in res["studies"]) else "expected_epochs"
     label = lambda s: s["study"] + (" (random control)" if s["random_control"] else "")
+    axis = "expected CPU-hours" if cost_key == "expected_cpu_hours" else "expected epochs"
     files = [
         plot_lines([(label(s), s["n"], s["expected_best"], *s["band"]) for s in res["studies"]],
-                   out_dir / "expected-best-trials.png", "expected best loss vs trials",
+                   out_dir / "expected-best-trials.png",
+                   "expected best loss vs trials (band: approximate 90% bootstrap)",
                    "trials", "expected best validation loss", logx=True),
         plot_lines([(label(s), s[cost_key], s["expected_best"], None, None)
                     for s in res["studies"]], out_dir / "expected-best-compute.png",
-                   "expected best loss vs compute", "expected CPU-hours" if cost_key == "expected_cpu_hours" else "expected epochs",
+                   "expected best loss vs compute", axis,
                    "expected best validation loss", logx=True),
         plot_bars([s["study"] for s in res["studies"]], [s["hit_rate"] for s in res["studies"]],
                   out_dir / "hit-rates.png", f"share of trials at or below {res['target']:.3g}",

@@ -4,8 +4,9 @@ Every curve is read on a log10 scale (losses span decades).  Seven features desc
 level features are measured in decades and scaled with a floor of a fifth of a decade, so a
 handful of curves sitting two decades below the rest stay a group of their own instead of
 being averaged away.  A rare group far below the rest is first split off on best level
-alone; the other curves are grouped by a Ward tree cut where the silhouette is highest.  Truncated (pruned) curves are
-described by what they showed before the cut.
+alone; the other curves are grouped by a Ward tree cut where the silhouette is highest
+(groups whose centres sit closer than the noise floors count as one).  Truncated (pruned)
+curves are described by what they showed before the cut.
 """
 from __future__ import annotations
 
@@ -33,8 +34,8 @@ _WEIGHTS = np.array([1.0, 1.5, 0.7, 1.0, 0.4, 0.8, 0.4])
 _BLOWUP_DECADES = 1.0
 _PLATEAU_STEP = 0.01      # decades per epoch below which the curve is flat
 _MAX_GROUPS = 7
-_WARD_SAMPLE = 1500
-_MIN_SEPARATION = 1.5     # scaled units between group centres       # Ward needs O(n^2) memory; seed from a sample above this
+_WARD_SAMPLE = 1500       # Ward needs O(n^2) memory: cut a sample's tree above this size
+_MIN_SEPARATION = 1.5     # scaled units between group centres
 
 
 def _log_curve(curve) -> np.ndarray:
@@ -210,6 +211,6 @@ def group_curves(curves) -> list[str]:
     Example:
         >>> labels = group_curves([np.geomspace(1, 1e-3, 10)] * 3 + [np.full(10, 0.5)] * 9)
         >>> labels[0], labels[-1]
-        ('converges deep', 'levels off')
+        ('converges deep', 'stalls early')
     """
     return find_groups(curves).labels

@@ -12,7 +12,7 @@ from searcher.errors import UserError
 __all__ = ["register", "load_store"]
 
 EPILOG = """examples:
-  searcher analyze studies/demo.yaml                 summary in the terminal, charts in runs/demo/analysis
+  searcher analyze studies/demo.yaml                 summary here, charts in runs/demo/analysis
   searcher analyze studies/demo.yaml --json          the whole result as one JSON object
   searcher analyze studies/demo.yaml --audit 6       also re-run 6 pruned trials to the full budget
 """

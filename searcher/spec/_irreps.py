@@ -132,22 +132,21 @@ def _product(a: set, b: set) -> set:
     return {(l, p1 * p2) for l1, p1 in a for l2, p2 in b for l in range(abs(l1 - l2), l1 + l2 + 1)}
 
 
-def reachable_irreps(hidden: str, sh_lmax: int, inputs: list[str]) -> set[tuple[int, int]]:
+def reachable_irreps(hidden: str, sh_lmax: int) -> set[tuple[int, int]]:
     """Orders and parities an equivariant network can emit.
 
-    A target irrep is reachable when it is in the hidden irreps, in hidden x SH(sh_lmax)
-    (the edge spherical harmonics, parity ``(-1)**l``), or in hidden x the odd-parity parts of
-    the inputs (axial vectors, pseudoscalars), which carry parity SH cannot.
+    A target irrep is reachable when it is in the hidden irreps or in hidden x SH(sh_lmax)
+    (the edge spherical harmonics, parity ``(-1)**l``): the model head is a linear map from the
+    hidden features plus a tensor product of them with the aggregated edge harmonics. Inputs
+    of other parities only reach the target through hidden irreps that hold that parity.
 
     Args:
         hidden: hidden irreps string.
         sh_lmax: order of the edge spherical harmonics.
-        inputs: irreps strings of the node inputs.
 
     Returns:
         set of ``(l, parity)``.
     """
     held = {(l, p) for _, l, p in parse_irreps(hidden)}
     sh = {(l, (-1) ** l) for l in range(sh_lmax + 1)}
-    odd = {(l, p) for text in inputs for _, l, p in parse_irreps(text) if p != (-1) ** l}
-    return held | _product(held, sh) | _product(held, odd)
+    return held | _product(held, sh)

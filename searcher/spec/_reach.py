@@ -19,7 +19,7 @@ __all__ = ["check_points", "MAX_POINTS"]
 MAX_POINTS = 5000
 _SHAPING = ("model.family", "model.hidden.irreps", "model.hidden.lmax",
             "model.hidden.multiplicity", "model.hidden.taper", "model.hidden.parity",
-            "model.edge_attrs.lmax", "model.node_inputs", "model.width")
+            "model.edge_attrs.lmax", "model.width")
 
 
 def _relevant(study) -> list:
@@ -78,8 +78,7 @@ def check_points(study, sink: Sink):
             continue
         fields = task_fields(cfg["task"])
         hidden = hidden_irreps(cfg["model"]["hidden"], cfg["model"]["width"])
-        inputs = [fields[n]["irreps"] for n in cfg["model"]["node_inputs"]]
-        reach = reachable_irreps(hidden, cfg["model"]["edge_attrs"]["lmax"], inputs)
+        reach = reachable_irreps(hidden, cfg["model"]["edge_attrs"]["lmax"])
         for name, field in fields.items():
             if field["role"] != "target":
                 continue

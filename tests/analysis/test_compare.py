@@ -60,8 +60,8 @@ def test_self_comparison_shows_no_clear_difference(tmp_path):
 
 def test_space_diff_kinds(tmp_path):
     a, _ = _study(tmp_path, "alpha")
-    b, _ = _study(tmp_path, "beta", lmax="{whole: [2, 3]}", basis="{one_of: [bessel, gaussian, cosine]}",
-                  extra="  \n", seed=1)
+    b, _ = _study(tmp_path, "beta", lmax="{whole: [2, 3]}",
+                  basis="{one_of: [bessel, gaussian, cosine]}", seed=1)
     c, _ = _study(tmp_path, "gamma", lmax="2", basis="bessel", seed=2)
     ab, ac = space_diff(a, b), space_diff(a, c)
     assert [e["name"] for e in ab["narrowed"]] == ["model.hidden.lmax"]

@@ -51,10 +51,11 @@ def test_cautions_and_provenance(dossier):
 def test_reruns_are_child_runs_of_the_study(dossier):
     from mlflow import MlflowClient
 
-    from searcher.search import tracking_uri
+    from searcher.search import prepare_tracking
 
     study, content = dossier
-    client = MlflowClient(tracking_uri=tracking_uri("", study.output_dir))
+    info = prepare_tracking(study, study.fixed(), study.output_dir)
+    client = MlflowClient(tracking_uri=info.uri)
     exp = client.get_experiment_by_name(study.name)
     parent = client.search_runs([exp.experiment_id],
                                 filter_string="tags.`searcher.role` = 'study'")[0]
