@@ -118,7 +118,7 @@ def find_parent_run(tracking_uri: str, study_name: str) -> str | None:
     runs = client.search_runs(
         ids, filter_string=f"tags.`searcher.role` = 'study' and "
                            f"tags.`searcher.study` = '{study_name}'",
-        order_by=["attributes.start_time DESC"], max_results=1)
+        order_by=["attributes.start_time ASC"], max_results=1)
     return runs[0].info.run_id if runs else None
 
 

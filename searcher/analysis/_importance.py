@@ -23,7 +23,7 @@ from searcher.analysis._records import TrialRecord
 
 __all__ = ["importances"]
 
-_MAX_TRIALS = 2000   # fANOVA's forest grows with the trial count; a sample ranks as well
+_MAX_TRIALS = 1000   # fANOVA's forest grows with the trial count; a sample ranks as well
 
 
 def _store(records: list[TrialRecord]) -> optuna.Study:

@@ -10,6 +10,7 @@ from __future__ import annotations
 import contextlib
 import copy
 import math
+import re
 from dataclasses import asdict, dataclass
 
 import numpy as np
@@ -40,7 +41,13 @@ def default_dtype(dtype: torch.dtype):
 
 @dataclass
 class GateResult:
-    """Outcome of the gate.  Errors are the largest absolute componentwise difference."""
+    """Outcome of the gate.
+
+    Errors are the largest componentwise difference between ``f(g·x)`` and ``g·f(x)``,
+    divided by ``max(1, max|f(x)|)``: relative to the output scale once outputs exceed 1, so
+    an untrained deep network with large activations is not rejected for round-off, while a
+    real defect (errors of order the output itself) still is.
+    """
 
     params: int
     equivariance_error: float      # e3nn equivariance_error, float64
@@ -70,6 +77,10 @@ def gate_function(model: torch.nn.Module, fields: dict, radius: float):
     return f, names, irreps_in, model.irreps_out
 
 
+def _scale(f, args) -> float:
+    return max(1.0, float(f(*args).abs().max()))
+
+
 def _e3nn_error(model, fields, graph, radius) -> float:
     f, names, irreps_in, irreps_out = gate_function(model, fields, radius)
     dtype = next(model.parameters()).dtype
@@ -77,7 +88,7 @@ def _e3nn_error(model, fields, graph, radius) -> float:
     with torch.no_grad():
         errors = equivariance_error(f, args, irreps_in=irreps_in, irreps_out=[irreps_out],
                                     do_parity=True, do_translation=True)
-    return max(float(v.max()) for v in errors.values())
+        return max(float(v.max()) for v in errors.values()) / _scale(f, args)
 
 
 def _scipy_error(model, fields, graph, radius, seed: int) -> float:
@@ -93,7 +104,7 @@ def _scipy_error(model, fields, graph, radius, seed: int) -> float:
                                                 for x, ir in zip(args[1:], irreps_in[1:])]
             expect = base @ irreps_out.D_from_matrix(g).T
             worst = max(worst, float((f(*moved) - expect).abs().max()))
-    return worst
+        return worst / _scale(f, args)
 
 
 def gate_model(model: torch.nn.Module, fields: dict, *, seed: int = 0,
@@ -108,7 +119,28 @@ def gate_model(model: torch.nn.Module, fields: dict, *, seed: int = 0,
         tol: largest float64 error an equivariant model may show.
     """
     with default_dtype(torch.float64):
-        return _gate(copy.deepcopy(model).to(torch.float64), fields, seed, tol)
+        return _gate(_exact_copy(model), fields, seed, tol)
+
+
+_W3J = re.compile(r"_w3j_(\d+)_(\d+)_(\d+)$")
+
+
+def _exact_copy(model: torch.nn.Module) -> torch.nn.Module:
+    """A float64 copy whose structural constants are exact, not upcast float32.
+
+    e3nn tensor products hold their Wigner 3j symbols as buffers made in the default dtype
+    when the model was built. A model built in float32 and upcast keeps float32-rounded
+    coupling coefficients, a genuine ~1e-7 symmetry break that would hide any real defect
+    below it; so they are rebuilt in float64. Learned weights and data statistics are kept.
+    """
+    m64 = copy.deepcopy(model).to(torch.float64)
+    for name, buf in list(m64.named_buffers()):
+        match = _W3J.search(name)
+        if match:
+            owner, leaf = m64.get_submodule(name.rsplit(".", 1)[0]), name.rsplit(".", 1)[1]
+            l1, l2, l3 = (int(g) for g in match.groups())
+            setattr(owner, leaf, o3.wigner_3j(l1, l2, l3, dtype=torch.float64))
+    return m64
 
 
 def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float) -> GateResult:
@@ -138,8 +170,12 @@ def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float) -> GateResu
 
 
 def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
-             tol: float = 1e-9) -> GateResult:
+             tol: float = 1e-9, stats: dict | None = None) -> GateResult:
     """Build the model of ``model_cfg`` (seeded) and gate it; see :func:`gate_model`.
+
+    Args:
+        stats: data statistics passed to :func:`build_model` (``degree_mean``), so the gated
+            model is the one that will train.
 
     Example:
         >>> run_gate(cfg["model"], fields, "anisotropy").passed  # doctest: +SKIP
@@ -147,5 +183,5 @@ def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
     """
     with torch.random.fork_rng(devices=[]), default_dtype(torch.float64):
         torch.manual_seed(seed)
-        model = build_model(model_cfg, fields, target)
+        model = build_model(model_cfg, fields, target, stats=stats)
         return _gate(model, fields, seed, tol)

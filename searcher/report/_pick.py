@@ -54,11 +54,15 @@ def decide(finalists: list[dict], *, seed: int = 0) -> tuple[dict, Outperform | 
     contenders = [f for f in finalists if f["role"] == "finalist" and _usable(f)]
     dropped = [f["label"] for f in finalists if f["role"] == "finalist" and not _usable(f)]
     control = next((f for f in finalists if f["role"] == "control"), None)
-    if not contenders:
+    fallback = not contenders
+    if fallback:
         contenders = [f for f in finalists if _usable(f)] or finalists
     contenders = sorted(contenders, key=lambda f: (not math.isfinite(f["metrics"]["error"]["mean"]),
                                                    f["metrics"]["error"]["mean"]))
     reasons, change = [], []
+    if fallback:
+        reasons.append("No finalist is usable, so the best remaining configuration is named; "
+                       "treat it as a fallback, not as a finding.")
     if dropped:
         reasons.append(f"Left out {', '.join(dropped)}: no completed seed, or the equivariance "
                        "gate failed after re-training.")

@@ -112,10 +112,11 @@ def grid_space(study) -> dict[str, list]:
         elif dim.kind == "float":
             lo, hi, n = float(dim.lo), float(dim.hi), GRID_REAL_POINTS
             if dim.log:
-                space[dim.name] = [math.exp(math.log(lo) + (math.log(hi) - math.log(lo)) * k
-                                            / (n - 1)) for k in range(n)]
+                inner = [math.exp(math.log(lo) + (math.log(hi) - math.log(lo)) * k / (n - 1))
+                         for k in range(1, n - 1)]
             else:
-                space[dim.name] = [lo + (hi - lo) * k / (n - 1) for k in range(n)]
+                inner = [lo + (hi - lo) * k / (n - 1) for k in range(1, n - 1)]
+            space[dim.name] = [lo, *inner, hi]  # exact ends: Optuna checks the bounds
     return space
 
 

@@ -59,6 +59,8 @@ def flatten(config: dict, prefix: str = "") -> dict[str, str]:
 
 
 def _quiet() -> None:
+    import mlflow  # noqa: F401  (mlflow sets up its loggers on import; quieten them after)
+
     for name in ("mlflow", "alembic", "sqlalchemy"):
         logging.getLogger(name).setLevel(logging.WARNING)
 
