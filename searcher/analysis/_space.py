@@ -4,21 +4,11 @@ from __future__ import annotations
 import json
 
 from searcher.errors import Problem, UserError
+from searcher.spec import flatten
 
 __all__ = ["space_diff", "comparability_problems", "check_comparable"]
 
 _TASK_KEYS = ("source", "fields", "split")
-
-
-def _flat(cfg: dict, prefix: str = "") -> dict:
-    out = {}
-    for key, value in cfg.items():
-        name = f"{prefix}{key}"
-        if isinstance(value, dict) and value:
-            out.update(_flat(value, name + "."))
-        else:
-            out[name] = value
-    return out
 
 
 def _space(study) -> dict:
@@ -26,7 +16,7 @@ def _space(study) -> dict:
     dims = {d.name: ("dim", d.spec()) for d in study.dimensions}
     fixed = study.fixed()
     for section in ("model", "training"):
-        for name, value in _flat(fixed[section], section + ".").items():
+        for name, value in flatten(fixed[section], section).items():
             dims.setdefault(name, ("fixed", value))
     return dims
 
@@ -75,7 +65,7 @@ def space_diff(study_a, study_b) -> dict:
 def comparability_problems(study_a, study_b, hashes_a: set, hashes_b: set) -> list[Problem]:
     """Reasons why two studies' losses are not on the same footing (empty: comparable)."""
     problems = []
-    ta, tb = (_flat({k: s.fixed()["task"].get(k) for k in _TASK_KEYS}, "task.")
+    ta, tb = (flatten({k: s.fixed()["task"].get(k) for k in _TASK_KEYS}, "task")
               for s in (study_a, study_b))
     for key in sorted(set(ta) | set(tb)):
         if ta.get(key) != tb.get(key):

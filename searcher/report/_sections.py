@@ -11,6 +11,8 @@ import math
 
 import yaml
 
+from searcher.spec import flatten
+
 __all__ = ["SECTION_TITLES", "fmt", "sections"]
 
 SECTION_TITLES = {
@@ -45,17 +47,6 @@ def _iv(iv: dict) -> str:
     if iv["method"] == "none":
         return fmt(iv["mean"])
     return f"{fmt(iv['mean'])} [{fmt(iv['low'])}, {fmt(iv['high'])}]"
-
-
-def _flatten(cfg: dict, prefix: str = "") -> dict:
-    out = {}
-    for key, value in cfg.items():
-        path = f"{prefix}{key}"
-        if isinstance(value, dict) and value:
-            out.update(_flatten(value, path + "."))
-        else:
-            out[path] = value
-    return out
 
 
 def _choice(c: dict) -> list:
@@ -138,7 +129,7 @@ def _transfer(c: dict) -> list:
 
 
 def _settings(c: dict) -> list:
-    flat = [_flatten(f["config"]) for f in c["finalists"]]
+    flat = [flatten(f["config"]) for f in c["finalists"]]
     keys = [k for k in flat[0] if len({json.dumps(fl.get(k), sort_keys=True) for fl in flat}) > 1]
     rows = [[k] + [json.dumps(fl.get(k)) for fl in flat] for k in keys]
     picked = next(f for f in c["finalists"] if f["label"] == c["pick"]["label"])

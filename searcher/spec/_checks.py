@@ -11,7 +11,8 @@ from searcher.spec._dims import Dimension, Sink, did_you_mean, is_dimension, par
 from searcher.spec._rules import RULES, VARYING_SECTIONS, Fields, Fractions, Names
 from searcher.spec._irreps import FIELD_KINDS, task_fields
 
-__all__ = ["check_tree", "check_links", "leaf_paths", "get", "condition_values", "order_dims"]
+__all__ = ["check_tree", "check_links", "leaf_paths", "get", "flatten", "condition_values",
+           "order_dims"]
 
 
 def leaf_paths(tree: dict, path: tuple = ()) -> list[str]:
@@ -24,6 +25,19 @@ def leaf_paths(tree: dict, path: tuple = ()) -> list[str]:
         else:
             out.append(dotted)
     return out
+
+
+def flatten(cfg: dict, prefix: str = "") -> dict:
+    """A resolved (sub)config as ``{dotted path: value}``; mapping-valued keys such as
+    ``task.fields`` stay whole.  ``prefix`` is the section path when ``cfg`` is one section.
+
+    Example:
+        >>> flatten({"hidden": {"lmax": 2}, "layers": 3}, "model")
+        {'model.hidden.lmax': 2, 'model.layers': 3}
+    """
+    base = tuple(prefix.split(".")) if prefix else ()
+    return {path: get(cfg, path[len(prefix) + 1:] if prefix else path)
+            for path in leaf_paths(cfg, base)}
 
 
 def get(cfg: dict, dotted: str):
