@@ -5,8 +5,8 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
-from conftest import HOSTILE_SUMMARY, HOSTILE_TEAM
-from _chromium import inspect_page
+from .conftest import HOSTILE_SUMMARY, HOSTILE_TEAM
+from ._chromium import inspect_page
 
 
 def test_page_loads_clean_in_chromium(dossier, tmp_path):

@@ -1,0 +1,127 @@
+"""The training loop on a tiny real dataset: statuses, determinism, metrics, schedules."""
+from __future__ import annotations
+
+import copy
+import math
+
+import pytest
+import torch
+from scipy.spatial import cKDTree
+
+from searcher.data import build_dataset
+from searcher.models import build_model
+from searcher.spec import defaults
+from searcher.train import (BlockErrors, Schedule, evaluate, fidelity_graphs, fit, load_weights,
+                            save_weights, target_blocks)
+
+
+@pytest.fixture(scope="module")
+def setup(tmp_path_factory):
+    cfg = defaults()
+    cfg["task"]["demo"].update(samples=8, probes=10, seed=3)
+    cfg["task"]["graph"].update(rule="neighbours", neighbours=4)
+    cfg["task"]["split"].update(fractions=[0.5, 0.25, 0.25], hold_out=[], stress=[])
+    cfg["model"].update(family="gated", layers=1, width=8, node_inputs=["velocity"])
+    cfg["model"]["hidden"].update(lmax=1, multiplicity=2)
+    cfg["model"]["radial"].update(count=4)
+    cfg["training"].update(epochs=3, batch_size=2)
+    data = build_dataset(cfg["task"], cache_dir=tmp_path_factory.mktemp("cache"))
+    return cfg, data
+
+
+def _fit(cfg, data, **kw):
+    torch.manual_seed(cfg["training"]["seed"])
+    model = build_model(cfg["model"], data.fields, data.target.name)
+    return model, fit(model, data, cfg, **kw)
+
+
+def test_fit_completes_and_keeps_the_best_epoch(setup, tmp_path):
+    cfg, data = setup
+    model, res = _fit(cfg, data, checkpoint_dir=tmp_path)
+    assert res.status == "completed" and res.epochs == 3 and len(res.curve) == 3
+    assert res.best_value == min(res.curve) and res.curve[res.best_epoch - 1] == res.best_value
+    keys = {"train_loss", "val_loss", "lr", "seconds"} | {f"val_rel_l2/{b}" for b, _ in
+                                                          target_blocks(data.target.irreps)}
+    assert all(set(h) == keys for h in res.history)
+    # the model now holds the best weights: its validation loss is the best value
+    _, val = fidelity_graphs(data, cfg)
+    assert evaluate(model, val, data)["loss"] == pytest.approx(res.best_value, rel=1e-5)
+    saved = load_weights(tmp_path / "best.pt")
+    assert all(torch.equal(saved[k], v) for k, v in res.best_state.items())
+
+
+def test_same_seed_same_curve(setup):
+    cfg, data = setup
+    assert _fit(cfg, data)[1].curve == _fit(cfg, data)[1].curve
+
+
+def test_absurd_rate_diverges_and_callback_stops(setup):
+    cfg, data = setup
+    wild = copy.deepcopy(cfg)
+    wild["training"].update(learning_rate=1.0e4, clip=0.0, epochs=6)
+    res = _fit(wild, data)[1]
+    assert res.status == "diverged" and f"epoch {res.epochs}" in res.reason
+    res = _fit(cfg, data, callback=lambda epoch, m: epoch == 2)[1]
+    assert res.status == "stopped" and res.epochs == 2
+    quick = copy.deepcopy(cfg)
+    quick["training"]["time_limit"] = 1e-9
+    assert _fit(quick, data)[1].status == "timeout"
+
+
+def test_fidelity_subsamples_and_rebuilds_edges(setup):
+    cfg, data = setup
+    low = copy.deepcopy(cfg)
+    low["task"]["fidelity"].update(train_fraction=0.5, probes=6)
+    train, val = fidelity_graphs(data, low)
+    assert len(train) == math.ceil(0.5 * len(data.split["train"]))
+    for g in train + val:
+        assert g.pos.shape[0] == 6
+        # reference: scipy's cKDTree, 4 nearest neighbours of each node (itself excluded)
+        _, idx = cKDTree(g.pos.numpy()).query(g.pos.numpy(), k=5)
+        want = {(int(j), i) for i in range(6) for j in idx[i][1:]}
+        got = {(int(s), int(d)) for s, d in g.edge_index.t()}
+        assert got == want
+        assert torch.allclose(g.edge_vec, g.pos[g.edge_index[0]] - g.pos[g.edge_index[1]])
+
+
+class _Identity:
+    @staticmethod
+    def invert(name, values):
+        return values
+
+
+class _Data:
+    """Only what BlockErrors reads: the target field and a normaliser."""
+
+    class target:  # noqa: N801
+        name, irreps = "t", "0e+2e"
+
+    normaliser = _Identity()
+
+
+def test_block_errors_match_the_definition():
+    true = torch.tensor([[0.0, 1.0, 2.0, 0.0, 0.0, 0.0], [0.0, 0.0, 0.0, 3.0, 0.0, 4.0]])
+    pred = true + torch.tensor([[0.5, 0.0, 1.0, 0.0, 0.0, 0.0], [0.0] * 6])
+    acc = BlockErrors(_Data)
+    acc.add(pred, true)
+    m = acc.measures()
+    # relative L2 = ||p - t|| / ||t|| (definition): ||(0,1,0,0,0, 0...)|| / sqrt(1+4+9+16)
+    assert m["2e"] == ("rel_l2", pytest.approx(1.0 / math.sqrt(30.0)))
+    # the 0e block is all zero: RMS error instead, sqrt(0.25 / 2)
+    assert m["0e"] == ("rms", pytest.approx(math.sqrt(0.125)))
+    assert acc.loss == pytest.approx((0.25 + 1.0) / 12)
+
+
+def test_cosine_schedule_with_warmup():
+    opt = torch.optim.SGD([torch.nn.Parameter(torch.zeros(1))], lr=1.0)
+    sch = Schedule(opt, {"schedule": "cosine", "learning_rate": 1.0, "warmup_epochs": 1,
+                         "epochs": 5})
+    # warm-up e/(w+1), then SGDR (Loshchilov & Hutter 2017) (1 + cos(pi t / T)) / 2, T = 4
+    want = [0.5] + [0.5 * (1 + math.cos(math.pi * t / 4)) for t in range(4)]
+    assert [sch.start(e) for e in range(1, 6)] == pytest.approx(want)
+    assert opt.param_groups[0]["lr"] == pytest.approx(want[-1])
+
+
+def test_weights_round_trip(tmp_path):
+    state = {"w": torch.arange(4.0)}
+    assert torch.equal(load_weights(save_weights(state, tmp_path / "a.pt"))["w"], state["w"])
