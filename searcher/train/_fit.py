@@ -4,8 +4,10 @@ The loss is the mean squared error on the normalised target.  After every epoch 
 evaluates the validation split, calls the callback and checks, in this order:
 
 * divergence: a non-finite training step, or an epoch whose training or validation loss is
-  above ``training.diverge_factor`` times the lowest loss seen so far (the validation loss of
-  the untrained model included, so a run that explodes in its first epoch is caught);
+  above ``training.diverge_factor`` times the lowest loss seen so far.  The lowest starts at
+  the smaller of the untrained model's validation loss and the loss of predicting zero (the
+  normalised target's mean square), so a run that explodes in its first epoch, or starts
+  out huge and stays there, is caught;
 * the callback's request to stop (status ``stopped``);
 * ``training.time_limit`` seconds of wall time (status ``timeout``), checked at epoch ends.
 
@@ -68,6 +70,13 @@ def pick_device(training: dict) -> torch.device:
     return torch.device("cpu")
 
 
+def _zero_loss(batches, target: str) -> float:
+    """Validation loss of predicting zero everywhere (the normalised target's mean square)."""
+    sq = sum(float((getattr(b, target) ** 2).sum()) for b in batches)
+    n = sum(getattr(b, target).numel() for b in batches)
+    return sq / n if n else math.inf
+
+
 def _finite(x: float) -> bool:
     return math.isfinite(x)
 
@@ -112,7 +121,7 @@ def fit(model: torch.nn.Module, dataset, config: dict, *,
     target = dataset.target.name
 
     lowest = predict_errors(model, val_batches, dataset).loss
-    lowest = lowest if _finite(lowest) else math.inf
+    lowest = min(lowest if _finite(lowest) else math.inf, _zero_loss(val_batches, target))
     result = FitResult("completed", "", 0, math.inf, 0)
     for epoch in range(1, int(training["epochs"]) + 1):
         t0 = time.perf_counter()

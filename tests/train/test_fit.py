@@ -68,6 +68,32 @@ def test_absurd_rate_diverges_and_callback_stops(setup):
     assert _fit(quick, data)[1].status == "timeout"
 
 
+class _Loud(torch.nn.Module):
+    """A model whose outputs start 1e3 times too large and can barely move (lr 1e-9)."""
+
+    def __init__(self, inner):
+        super().__init__()
+        self.inner = inner
+
+    def forward(self, batch):
+        return 1e3 * self.inner(batch)
+
+
+def test_run_that_starts_huge_is_diverged(setup):
+    # A run that never comes within diverge_factor of predicting zero has not learned:
+    # the "100x above its best" rule measured from the trivial predictor (common practice).
+    cfg, data = setup
+    slow = copy.deepcopy(cfg)
+    slow["training"].update(learning_rate=1e-9, clip=0.0)
+    torch.manual_seed(0)
+    inner = build_model(cfg["model"], data.fields, data.target.name)
+    with torch.no_grad():
+        for p in inner.parameters():
+            p.add_(0.5)  # no zero-output initialisation to hide behind
+    res = fit(_Loud(inner), data, slow)
+    assert res.status == "diverged" and "epoch 1 " in res.reason
+
+
 def test_fidelity_subsamples_and_rebuilds_edges(setup):
     cfg, data = setup
     low = copy.deepcopy(cfg)
