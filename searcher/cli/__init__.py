@@ -15,7 +15,7 @@ from searcher.errors import UserError
 __all__ = ["main"]
 
 # Order = order in ``searcher --help``.
-COMMANDS = ("check", "schema", "data", "run", "status", "demo", "dossier", "analyze", "compare")
+COMMANDS = ("check", "schema", "data", "run", "status", "demo", "analyze", "compare", "dossier")
 
 EPILOG = """examples:
   searcher demo --quick                 run the whole job on the embedded demo

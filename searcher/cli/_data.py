@@ -24,8 +24,14 @@ an optional edge_index [2, E] (row 0 source, row 1 destination), used with task.
 
 
 def register(subparsers) -> None:
-    parser = subparsers.add_parser("data", help="inspect a dataset or export the demo flows",
-                                   description="Inspect a dataset or export the demo flows.")
+    parser = subparsers.add_parser(
+        "data", help="inspect a dataset or export the demo flows",
+        description="Inspect a dataset or export the demo flows.",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        epilog="examples:\n"
+               "  searcher data inspect demo                    fields, irreps, graphs, splits\n"
+               "  searcher data inspect runs/flows/ --study my.yaml --json\n"
+               "  searcher data export demo --graphs 8 --seed 1 --out demo-npz/")
     sub = parser.add_subparsers(dest="data_command", metavar="ACTION", required=True)
     ins = sub.add_parser("inspect", help="fields, kinds, irreps, graph stats and split sizes")
     ins.add_argument("source", help="'demo', a data file (.npz/.vtu/.vtp/.vtk) or a folder")

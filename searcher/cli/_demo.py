@@ -93,7 +93,11 @@ def _handle(args: argparse.Namespace) -> int:
 def register(sub) -> None:
     p = sub.add_parser("demo", help="run the whole job on the embedded demo",
                        description="Generate the demo flows, search, analyse and write the "
-                                   "dossier.")
+                                   "dossier.",
+                       formatter_class=argparse.RawDescriptionHelpFormatter,
+                       epilog="examples:\n"
+                              "  searcher demo --quick          the same work, smaller (a few minutes)\n"
+                              "  searcher demo --out /tmp/demo  the full demo into another folder")
     p.add_argument("--quick", action="store_true", help="a smaller demo (a few minutes)")
     p.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default runs/demo or runs/demo-quick)")
