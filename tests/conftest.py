@@ -27,3 +27,21 @@ def _seeded():
 @pytest.fixture
 def global_random_seed() -> int:
     return 0
+
+
+@pytest.fixture(scope="session")
+def pg_server():
+    """URL of a real PostgreSQL server (tests/pg_server.py: the CI one, or a private one)."""
+    from tests.pg_server import shared_server
+
+    yield from shared_server()
+
+
+@pytest.fixture
+def pg_url(pg_server):
+    """URL of an empty database of its own on that server, dropped after the test."""
+    from tests.pg_server import drop_database, fresh_database
+
+    url = fresh_database(pg_server)
+    yield url
+    drop_database(pg_server, url)

@@ -3,11 +3,8 @@ from __future__ import annotations
 
 import argparse
 from pathlib import Path
-from urllib.parse import urlsplit
 
 import optuna
-
-from searcher.errors import UserError
 
 __all__ = ["register", "load_store"]
 
@@ -16,11 +13,6 @@ EPILOG = """examples:
   searcher analyze studies/demo.yaml --json          the whole result as one JSON object
   searcher analyze studies/demo.yaml --audit 6       also re-run 6 pruned trials to the full budget
 """
-
-
-def _masked(url: str) -> str:
-    parts = urlsplit(url)
-    return url.replace(f":{parts.password}@", ":***@") if parts.password else url
 
 
 def load_store(study, storage: str | None = None) -> optuna.Study:
@@ -34,28 +26,9 @@ def load_store(study, storage: str | None = None) -> optuna.Study:
         UserError: no journal file yet, the storage cannot be opened, or it holds no study
             of that name.
     """
-    optuna.logging.set_verbosity(optuna.logging.WARNING)
-    url = storage or study.fixed()["search"]["storage"]
-    where = {"path": "--storage"} if storage else {"file": str(study.path),
-                                                    "path": "search.storage"}
-    if not url:
-        path = Path(study.output_dir) / "study.journal"
-        if not path.exists():
-            raise UserError.single(f"the study's journal must exist to be read, but {path} "
-                                   f"does not (run the study first)", **where)
-        store = optuna.storages.JournalStorage(
-            optuna.storages.journal.JournalFileBackend(str(path)))
-    else:
-        try:
-            store = optuna.storages.RDBStorage(url)
-        except Exception as err:  # any driver or connection failure is a user-side problem
-            raise UserError.single(f"cannot open the storage {_masked(url)}: "
-                                   f"{type(err).__name__}", **where) from None
-    names = optuna.get_all_study_names(store)
-    if study.name not in names:
-        raise UserError.single(f"the storage must hold a study named {study.name!r}, but it "
-                               f"holds {names or 'none'}", **where)
-    return optuna.load_study(study_name=study.name, storage=store)
+    from searcher.search import read_store
+
+    return read_store(study, storage)
 
 
 def _tracking(study) -> str | None:

@@ -16,6 +16,8 @@ EXPORT_HELP = """Writes one NPZ file per graph, graph_0000.npz, ... in DIR:
   velocity            [N, 3]     vector
   pressure            [N]        scalar
   pressure_gradient   [N, 3]     vector
+  strain_rate         [N, 3, 3]  traceless symmetric tensor
+  vorticity           [N, 3]     axial vector
   anisotropy          [N, 3, 3]  traceless symmetric tensor (the target)
   header              JSON string: field name -> {kind, role, level}
 The reader also accepts [N, 2] positions/vectors (2D, z = 0), [N, 9] / [N, 6] tensors and

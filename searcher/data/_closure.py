@@ -33,7 +33,7 @@ __all__ = ["strain_rotation", "time_scale", "pope_terms", "linear_anisotropy",
            "szl_anisotropy", "make_realizable", "C_TAU"]
 
 C_TAU = 3.33
-OMEGA0 = 1e-12
+OMEGA0 = 2.0
 _EYE = np.eye(3)
 
 

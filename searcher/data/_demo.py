@@ -5,7 +5,8 @@ One sample = one flow family with random parameters, placed by a random rigid mo
 and a coin says so; pressure is a scalar, velocity and pressure gradient are polar vectors so
 ``u' = R u`` holds for improper ``R`` too), probed at random points of the cube
 ``[−region, region]³`` (outside the body for the sphere family).  Inputs: velocity, pressure,
-pressure gradient; target: the anisotropy of :mod:`searcher.data._closure`.
+pressure gradient, strain rate S and vorticity (what a mean-flow solution provides at each
+probe); target: the anisotropy of :mod:`searcher.data._closure`.
 
 Every draw comes from ``numpy.random.default_rng([seed, sample, stream])``, so a sample can be
 regenerated with more or fewer probes (same flow, same placement) for the density stress sets.
@@ -17,7 +18,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.spatial.transform import Rotation
 
-from searcher.data._closure import make_realizable, szl_anisotropy
+from searcher.data._closure import make_realizable, strain_rotation, szl_anisotropy
 from searcher.data._flows import FAMILIES, draw_params, evaluate_flow
 from searcher.data._kinds import FIELD_KINDS, Field, to_irreps
 from searcher.errors import UserError
@@ -28,6 +29,8 @@ DEMO_FIELDS = tuple(Field(name, kind, FIELD_KINDS[kind], role, "node") for name,
     ("velocity", "vector", "input"),
     ("pressure", "scalar", "input"),
     ("pressure_gradient", "vector", "input"),
+    ("strain_rate", "traceless_symmetric_tensor", "input"),
+    ("vorticity", "axial_vector", "input"),
     ("anisotropy", "traceless_symmetric_tensor", "target"),
 ))
 _PARAMS, _PLACE, _PROBES = 0, 1, 2   # random streams per sample
@@ -96,7 +99,12 @@ def demo_sample(demo_cfg: dict, index: int, probes: int | None = None) -> Sample
                 place.centre)
     u, g, p, gp = place_flow(family, params, place, x)
     b, scaled = make_realizable(szl_anisotropy(g))
-    values = {"velocity": u, "pressure": p, "pressure_gradient": gp, "anisotropy": b}
+    s_rate, omega = strain_rotation(g)
+    # vorticity = curl u = (2 Ω_zy, 2 Ω_xz, 2 Ω_yx) of the placed field, so it is an axial
+    # vector: it picks up det(R) under a mirror, as its 1e irreps say
+    vort = 2.0 * np.stack([omega[:, 2, 1], omega[:, 0, 2], omega[:, 1, 0]], axis=1)
+    values = {"velocity": u, "pressure": p, "pressure_gradient": gp, "strain_rate": s_rate,
+              "vorticity": vort, "anisotropy": b}
     fields = {f.name: to_irreps(f.kind, values[f.name]) for f in DEMO_FIELDS}
     return Sample(x, fields, family, index, info={"params": params, "realizability_scaled": scaled})
 

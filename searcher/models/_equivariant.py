@@ -39,8 +39,14 @@ class EquivariantModel(FieldModel):
                 f"{self.hidden} nor in hidden ⊗ SH(lmax={cfg['edge_attrs']['lmax']})",
                 path="model.hidden")
         self.aggregate = Aggregate(cfg["aggregate"], (stats or {}).get("degree_mean"))
-        self.embed = BiasedTensorProduct(self.irreps_in, self.geometry.irreps_node_attr,
-                                         self.hidden)
+        # With input_products the embedding couples the inputs with themselves too, so a
+        # node's own quadratic invariants and tensors (S·S, S·Ω − Ω·S, |ω|² ...) are in reach
+        # of the first layer; otherwise only their products with the node attributes are.
+        self.input_products = bool(cfg["input_products"])
+        embed_attr = self.geometry.irreps_node_attr
+        if self.input_products:
+            embed_attr = embed_attr + self.irreps_in
+        self.embed = BiasedTensorProduct(self.irreps_in, embed_attr, self.hidden)
         self.layers = torch.nn.ModuleList(self.make_layer() for _ in range(int(cfg["layers"])))
         self.norms = torch.nn.ModuleList(make_norm(cfg["norm"], self.hidden)
                                          for _ in range(int(cfg["layers"])))
@@ -55,7 +61,9 @@ class EquivariantModel(FieldModel):
     def forward(self, data) -> torch.Tensor:
         """Shapes: graph with ``N`` nodes, ``B`` graphs → ``[N or B, irreps_out.dim]``."""
         ctx: EdgeContext = self.geometry(data)
-        h = self.embed(self.read_inputs(data, ctx.batch), ctx.node_attr)
+        x = self.read_inputs(data, ctx.batch)
+        attr = torch.cat([ctx.node_attr, x], dim=1) if self.input_products else ctx.node_attr
+        h = self.embed(x, attr)
         for layer, norm in zip(self.layers, self.norms):
             update = layer(h, ctx)
             h = norm(h + update if self.residual else update, ctx)

@@ -148,16 +148,17 @@ def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float) -> GateResu
     cutoff = geometry.radial.cutoff if geometry is not None else 1.0
     # Every edge inside the radial cutoff, so the radial features take part.
     graph = random_graph(fields, GATE_NODES, seed, radius=0.9 * cutoff, dtype=torch.float64)
-    m32 = copy.deepcopy(m64).to(torch.float32)
+    params = sum(p.numel() for p in m64.parameters())
+    equivariant = bool(getattr(m64, "equivariant", True))
     with torch.random.fork_rng(devices=[]):
         torch.manual_seed(seed)  # e3nn draws its random transforms from torch's RNG
         with default_dtype(torch.float64):
             err64 = _e3nn_error(m64, fields, graph, graph.graph_radius)
             second = _scipy_error(m64, fields, graph, graph.graph_radius, seed)
+        # ``m64`` is the gate's own copy: converting it in place saves a deep copy, which
+        # costs as much as the checks themselves (e3nn's fx modules recompile when copied).
         with default_dtype(torch.float32):
-            err32 = _e3nn_error(m32, fields, graph, graph.graph_radius)
-    params = sum(p.numel() for p in m64.parameters())
-    equivariant = bool(getattr(m64, "equivariant", True))
+            err32 = _e3nn_error(m64.to(torch.float32), fields, graph, graph.graph_radius)
     worst = max(err64, second)
     if not equivariant:
         return GateResult(params, err64, err32, second, True,
@@ -177,11 +178,36 @@ def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
         stats: data statistics passed to :func:`build_model` (``degree_mean``), so the gated
             model is the one that will train.
 
+    The verdict of an architecture is measured once per process, with the seed of the first
+    call; later calls with the same model section, fields, target, tolerance and stats (any
+    seed) return a copy of it.
+
     Example:
         >>> run_gate(cfg["model"], fields, "anisotropy").passed  # doctest: +SKIP
         True
     """
-    with torch.random.fork_rng(devices=[]), default_dtype(torch.float64):
-        torch.manual_seed(seed)
-        model = build_model(model_cfg, fields, target, stats=stats)
-        return _gate(model, fields, seed, tol)
+    key = _verdict_key(model_cfg, fields, target, tol, stats)
+    if key not in _VERDICTS:
+        with torch.random.fork_rng(devices=[]), default_dtype(torch.float64):
+            torch.manual_seed(seed)
+            model = build_model(model_cfg, fields, target, stats=stats)
+            _VERDICTS[key] = _gate(model, fields, seed, tol)
+        while len(_VERDICTS) > _VERDICTS_KEPT:
+            _VERDICTS.pop(next(iter(_VERDICTS)))
+    return copy.deepcopy(_VERDICTS[key])
+
+
+# Verdicts of architectures gated in this process.  Equivariance is a property of the
+# architecture (irreps, paths, blocks), not of initial weights, so a sweep that draws the same
+# model section again, with another trial seed, reuses the first verdict instead of building
+# and checking the model again (about 2 s a trial on the demo).
+_VERDICTS: dict[str, GateResult] = {}
+_VERDICTS_KEPT = 256
+
+
+def _verdict_key(model_cfg: dict, fields: dict, target: str, tol: float, stats) -> str:
+    from searcher.spec import config_hash
+
+    described = {k: [f.name, f.kind, str(f.irreps), f.role, f.level] for k, f in fields.items()}
+    return config_hash({"model": model_cfg, "fields": described, "target": target,
+                        "tol": float(tol), "stats": stats or {}})

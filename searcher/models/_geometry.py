@@ -4,7 +4,8 @@ Cached geometry: a graph may carry ``edge_sh`` ``[E, (lmax+1)²]`` (spherical ha
 ``edge_vec``, e3nn 'component' normalisation, unit vectors), ``edge_rbf`` ``[E, count]``
 (radial basis times envelope of ``|edge_vec|``) and ``edge_geometry`` (the string
 :attr:`Geometry.key` they were computed with).  They are used only when the key matches
-the model's own settings; :func:`attach_geometry` writes all three.
+the model's own settings; :func:`attach_geometry` writes all three, and on request the
+whole parameter-free :class:`EdgeContext` as ``edge_context`` (``(Geometry.context_key, ctx)``).
 """
 from __future__ import annotations
 
@@ -112,6 +113,10 @@ class Geometry(torch.nn.Module):
         self.invariant_count = sum(self.radial.count if n == "distance" else 1
                                    for n in self.invariants)
         self.key = f"sh{lmax}|{self.radial.extra_repr()}"
+        # Everything the edge context depends on: it holds no parameters, so a fixed batch
+        # can keep the whole context, not only its SH and radial basis.
+        self.context_key = "|".join([self.key, ",".join(self.invariants), self.node_attrs,
+                                     self.velocity, self.extra, self.pressure])
 
     def cached(self, data) -> tuple[torch.Tensor, torch.Tensor] | None:
         """``(edge_sh, edge_rbf)`` from the graph when computed with this model's settings."""
@@ -127,6 +132,9 @@ class Geometry(torch.nn.Module):
         return self.sh(edge_vec), self.radial(edge_vec.norm(dim=-1))
 
     def forward(self, data) -> EdgeContext:
+        kept = getattr(data, "edge_context", None)
+        if isinstance(kept, tuple) and kept[0] == self.context_key:
+            return kept[1]
         src, dst = data.edge_index[0], data.edge_index[1]
         n = int(data.pos.shape[0])
         batch, num_graphs = graph_batch(data)
@@ -165,8 +173,19 @@ class Geometry(torch.nn.Module):
                            node_attr, batch, num_graphs)
 
 
-def attach_geometry(model: torch.nn.Module, data) -> None:
-    """Cache the model's edge SH and radial basis on ``data`` (see the module docstring)."""
+def attach_geometry(model: torch.nn.Module, data, *, context: bool = False) -> None:
+    """Cache the model's edge SH and radial basis on ``data`` (see the module docstring).
+
+    Args:
+        model: a model with ``.geometry``.
+        data: a graph or batch whose positions and input fields stay fixed.
+        context: also keep the whole :class:`EdgeContext` (node attributes, invariant edge
+            scalars) as ``data.edge_context``; the model then skips its geometry step.  Only
+            for data that is not changed afterwards (the trainer's fixed batches).
+    """
+    geometry = model.geometry
     with torch.no_grad():
-        data.edge_sh, data.edge_rbf = model.geometry.compute(data.edge_vec)
-    data.edge_geometry = model.geometry.key
+        data.edge_sh, data.edge_rbf = geometry.compute(data.edge_vec)
+        data.edge_geometry = geometry.key
+        if context:
+            data.edge_context = (geometry.context_key, geometry(data))

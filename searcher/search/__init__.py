@@ -16,7 +16,7 @@ from ._registry import (PRUNERS, SAMPLERS, SEED_STRIDE, grid_space, make_pruner,
 from ._rerun import rerun_config, study_dataset, train_config
 from ._runner import RunSummary, deadline_of, parse_until, run_study
 from ._status import study_status
-from ._store import make_storage, open_store, storage_label
+from ._store import make_storage, open_store, read_store, storage_down, storage_label
 from ._tracking import (Tracker, TrackingInfo, find_study_run, flatten, prepare_tracking)
 from ._trial import TrialRunner, trial_seed
 from ._urls import mask_url, public_config
@@ -27,7 +27,8 @@ __all__ = [
     "SAMPLERS", "SEED_STRIDE", "grid_space", "make_pruner", "make_sampler", "register_pruner",
     "register_sampler", "sampler_seed", "rerun_config", "study_dataset", "train_config",
     "RunSummary", "deadline_of", "parse_until", "run_study", "study_status", "make_storage",
-    "open_store", "storage_label", "Tracker", "TrackingInfo", "find_study_run", "flatten",
+    "open_store", "read_store", "storage_down", "storage_label", "Tracker", "TrackingInfo",
+    "find_study_run", "flatten",
     "prepare_tracking", "TrialRunner", "trial_seed", "mask_url", "public_config",
     "ReplayResult", "compare_pruners", "crossing_curves", "format_replay_table", "good_mask",
     "measure_call_cost", "replay", "replay_pruners",

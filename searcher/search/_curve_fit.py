@@ -42,7 +42,7 @@ from optuna.trial import TrialState
 from scipy.optimize import least_squares
 from scipy.special import stdtr
 
-__all__ = ["CurveFitPruner", "prob_beats"]
+__all__ = ["CurveFitPruner", "prob_beats", "crossing_prior"]
 
 # Residual standard deviation floor in decades: a validation loss measured on a finite set
 # always jitters by a few percent, and exact synthetic curves must not give zero variance.
@@ -52,6 +52,15 @@ _NOISE_FLOOR = 0.01
 _MAX_DROP = 6.0
 # Fewest finite points to fit; each shape also needs two more points than parameters.
 _MIN_POINTS = 5
+# Finished curves within this RMS distance (decades) of a running one count as its
+# neighbours in the crossing prior: about the spread of one configuration over seeds.
+_NEIGHBOUR_DECADES = 0.25
+# A curve is "still flat" while its best is within max(this, 3 noise scales) of its start.
+_FLAT_DECADES = 0.1
+# Falling faster than this (decades per epoch, best so far) = in the middle of a drop.
+_FALL_DECADES = 0.1
+# Until this fraction of the budget, a still-flat curve with no neighbours is not pruned.
+_TRUST_FRACTION = 0.5
 _STARTS = 1          # refinements per shape: the grid already is the multi-start
 _MAX_NFEV = 30       # small: the grid start is already close
 
@@ -163,6 +172,88 @@ def _fit_shape(shape: _Shape, x, u, y, x_end, u_end, c_lo, c_hi, scale):
     return mean, spread, n - k, bic
 
 
+def _noise_scale(y: np.ndarray) -> float:
+    """Robust noise scale (decades) of a log curve from its second differences: a smooth
+    trend barely moves them (MAD / 0.6745 = 1.4826 MAD; Var(d2) = 6 sigma^2 for white noise)."""
+    if y.size < 3:
+        return _NOISE_FLOOR
+    return max(_NOISE_FLOOR, 1.4826 * float(np.median(np.abs(np.diff(y, 2)))) / math.sqrt(6.0))
+
+
+def _curve_of(trial: optuna.trial.FrozenTrial, step: int) -> np.ndarray:
+    """Intermediate values 1..step as an array (NaN where an epoch was not reported)."""
+    curve = np.full(step, np.nan)
+    for s, v in trial.intermediate_values.items():
+        if 1 <= s <= step:
+            curve[s - 1] = v
+    return curve
+
+
+def _logs(curve) -> np.ndarray:
+    y = np.asarray(curve, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = np.log10(y)
+    out[~np.isfinite(out)] = np.nan
+    return out
+
+
+def _still_flat(finite: np.ndarray) -> bool:
+    """True while a curve's best so far is within noise of its first value (no drop yet)."""
+    y = np.log10(finite)
+    return float(y[0] - y.min()) < max(_FLAT_DECADES, 3.0 * _noise_scale(y))
+
+
+def _falling_fast(finite: np.ndarray) -> bool:
+    """True while the best so far fell by more than max(_FALL_DECADES, 3 noise scales) per
+    epoch over the last two epochs: the curve is in a drop whose end no fit can see."""
+    if finite.size < 3:
+        return False
+    best = np.minimum.accumulate(np.log10(finite))
+    return float(best[-3] - best[-1]) / 2.0 > max(_FALL_DECADES, 3.0 * _noise_scale(best))
+
+
+def crossing_prior(curve, finished, finals, target: float,
+                   radius: float = _NEIGHBOUR_DECADES) -> tuple[int, int]:
+    """Empirical crossing evidence: of the finished curves that looked like ``curve`` up to
+    its last epoch, how many ended at or below ``target``?
+
+    "Looked like" means a root-mean-square distance of at most ``radius`` decades between
+    the log10 curves over the epochs both have finite (at least ``min(3, len(curve))`` of
+    them).  Matching the whole prefix, not only the current level, keeps plateau curves and
+    curves that fell fast and stalled apart, though both may sit at the same level now.
+
+    Args:
+        curve: the running trial's losses, epoch 1 first.
+        finished: finished trials' loss curves (any length; shorter ones are compared over
+            what they have).
+        finals: their final (best) values, the same order.
+        target: the loss to beat.
+        radius: neighbourhood radius in decades.
+
+    Returns:
+        ``(hits, neighbours)``.
+
+    Example:
+        >>> plateau = np.r_[np.full(6, 0.03), np.geomspace(0.03, 1e-4, 14)]
+        >>> crossing_prior(np.full(6, 0.03), [plateau, np.geomspace(1, 1e-3, 20)],
+        ...                [1e-4, 1e-3], target=2e-4)
+        (1, 1)
+    """
+    y = _logs(curve)
+    n = y.size
+    need = min(3, n)
+    hits = seen = 0
+    for other, final in zip(finished, finals):
+        z = _logs(other)[:n]
+        both = np.isfinite(y[:z.size]) & np.isfinite(z)
+        if both.sum() < need:
+            continue
+        if math.sqrt(float(np.mean((y[:z.size][both] - z[both]) ** 2))) <= radius:
+            seen += 1
+            hits += int(final <= target)
+    return hits, seen
+
+
 def prob_beats(curve, max_epochs: int, target: float) -> float:
     """Probability that a loss curve ends below ``target`` by epoch ``max_epochs``.
 
@@ -203,10 +294,8 @@ def prob_beats(curve, max_epochs: int, target: float) -> float:
     y = logs[ok]
     x_end = np.array([float(max_epochs)])
     u, u_end = x / max_epochs, x_end / max_epochs
-    d2 = np.diff(y, 2)
-    # Robust noise scale from second differences (a smooth trend barely moves them); it sets
-    # where soft-L1 switches from squared to absolute residuals.
-    scale = max(_NOISE_FLOOR, 1.4826 * float(np.median(np.abs(d2))) / math.sqrt(6.0))
+    # The noise scale sets where soft-L1 switches from squared to absolute residuals.
+    scale = _noise_scale(y)
     c_lo, c_hi = float(y.min()) - _MAX_DROP, float(y.max()) + 1.0
     fits = [f for s in _SHAPES
             if (f := _fit_shape(s, x, u, y, x_end, u_end, c_lo, c_hi, scale)) is not None]
@@ -253,18 +342,19 @@ class CurveFitPruner(optuna.pruners.BasePruner):
         self._threshold = float(threshold)
         self._rank = int(rank)
 
-    def _target(self, study: optuna.Study) -> float | None:
-        values = []
+    def _finished(self, study: optuna.Study) -> tuple[list[np.ndarray], list[float]]:
+        """Curves and final values of COMPLETE trials (no finite value: best intermediate)."""
+        curves, finals = [], []
         for t in study.get_trials(deepcopy=False, states=(TrialState.COMPLETE,)):
+            curve = _curve_of(t, t.last_step or 0)
             v = t.value
             if v is None or not math.isfinite(v):
-                finite = [w for w in t.intermediate_values.values() if math.isfinite(w)]
-                v = min(finite) if finite else None
+                finite = curve[np.isfinite(curve)]
+                v = float(finite.min()) if finite.size else None
             if v is not None:
-                values.append(v)
-        if len(values) < self._rank:
-            return None
-        return sorted(values)[self._rank - 1]
+                curves.append(curve)
+                finals.append(float(v))
+        return curves, finals
 
     def prune(self, study: optuna.Study, trial: optuna.trial.FrozenTrial) -> bool:
         if study.direction != optuna.study.StudyDirection.MINIMIZE:
@@ -273,12 +363,27 @@ class CurveFitPruner(optuna.pruners.BasePruner):
         step = trial.last_step
         if step is None or step < self._min_epochs or step >= self._max_epochs:
             return False
-        target = self._target(study)
-        if target is None:
+        curves, finals = self._finished(study)
+        if len(finals) < self._rank:
             return False
-        curve = np.full(step, np.nan)
-        for s, v in trial.intermediate_values.items():
-            if 1 <= s <= step:
-                curve[s - 1] = v
-        # NaN (too few points) compares False, so an unfit curve is never pruned.
-        return bool(prob_beats(curve, self._max_epochs, target) < self._threshold)
+        target = sorted(finals)[self._rank - 1]
+        curve = _curve_of(trial, step)
+        finite = curve[np.isfinite(curve) & (curve > 0)]
+        if finite.size == 0 or finite.min() <= target:
+            return False                       # never prune a curve that beats the target
+        if _falling_fast(finite):
+            return False                       # mid-drop: no fit can place the asymptote yet
+        p_fit = prob_beats(curve, self._max_epochs, target)
+        if math.isnan(p_fit):
+            return False                       # too few points to fit: no evidence either way
+        hits, seen = crossing_prior(curve, curves, finals, target)
+        if seen:
+            # Beta-binomial blend: the fit counts as one pseudo-observation beside the
+            # finished curves that looked like this one at this epoch.
+            return (hits + p_fit) / (seen + 1) < self._threshold
+        # Nothing finished looked like this curve.  A fit cannot see the drop that ends a
+        # plateau, so a curve still flat since its first epoch keeps its chance until
+        # _TRUST_FRACTION of the budget is spent.
+        if _still_flat(finite) and step < _TRUST_FRACTION * self._max_epochs:
+            return False
+        return p_fit < self._threshold

@@ -3,6 +3,10 @@
 Every sampler gets its settings spelled out, so results do not move when Optuna changes a
 default.  Seeds: worker ``w`` of a study seeded ``s`` samples with seed ``s + w * SEED_STRIDE``
 (a prime), so parallel workers draw different start-up points yet every run is repeatable.
+Workers that share a database with other machines also mix in an *origin* (their host name
+and process id, see ``sampler_seed``): identical commands on different hosts all have worker
+index 0, and without it they would draw the same start-up points.  Each trial records the
+sampler seed that drew it (user attribute ``sampler_seed``).
 
 Pruners see one step per epoch, counted from 1 (``trial.report(val_loss, epoch)``):
 
@@ -21,6 +25,7 @@ space when ``log: true``); derived dimensions are computed, not searched.
 """
 from __future__ import annotations
 
+import hashlib
 import math
 import warnings
 from typing import Callable
@@ -57,9 +62,19 @@ def register_pruner(name: str):
     return deco
 
 
-def sampler_seed(seed: int, worker: int) -> int:
-    """The sampler seed of worker ``worker`` (0-based)."""
-    return (int(seed) + int(worker) * SEED_STRIDE) % (2 ** 32)
+def sampler_seed(seed: int, worker: int, origin: str = "") -> int:
+    """The sampler seed of worker ``worker`` (0-based).
+
+    Args:
+        seed: the study's ``search.seed``.
+        worker: the worker's index within its ``searcher run`` process.
+        origin: ``""`` on a store only this machine uses (repeatable), else ``"host:pid"`` of
+            the worker, hashed (sha256, stable across Python runs) into the seed.
+    """
+    mixed = int(seed) + int(worker) * SEED_STRIDE
+    if origin:
+        mixed += int.from_bytes(hashlib.sha256(origin.encode()).digest()[:4], "big")
+    return mixed % (2 ** 32)
 
 
 @register_sampler("tpe")
@@ -125,13 +140,14 @@ def _grid(study, cfg, seed):
     return optuna.samplers.GridSampler(grid_space(study), seed=seed)
 
 
-def make_sampler(study, cfg: dict, seed: int, worker: int = 0) -> optuna.samplers.BaseSampler:
+def make_sampler(study, cfg: dict, seed: int, worker: int = 0,
+                 origin: str = "") -> optuna.samplers.BaseSampler:
     """The sampler named by ``search.sampler.kind`` (a wrong name lists the valid ones)."""
     kind = cfg["kind"]
     if kind not in SAMPLERS:
         raise UserError.single(f"must be one of {', '.join(SAMPLERS)}, but got {kind!r}",
                                file=str(getattr(study, "path", "")), path="search.sampler.kind")
-    return SAMPLERS[kind](study, cfg, sampler_seed(seed, worker))
+    return SAMPLERS[kind](study, cfg, sampler_seed(seed, worker, origin))
 
 
 @register_pruner("none")

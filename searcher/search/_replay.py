@@ -35,7 +35,7 @@ class ReplayResult:
         epochs_full: epochs without pruning (sum of curve lengths).
         epoch_ratio: ``epochs / epochs_full``.
         best: best value among COMPLETE trials (what the search would pick); NaN if none.
-        best_full: best value over all full curves.
+        best_full: best value over the full-length curves (an unpruned search's pick).
         best_ratio: ``best / best_full`` (1.0 = the best curve survived).
         pruned: number of trials pruned.
         good: size of the ground-truth good group.
@@ -122,8 +122,14 @@ def replay(curves: Sequence[np.ndarray], pruner: optuna.pruners.BasePruner, *,
            good: np.ndarray | None = None, seed: int = 0, label: str = "") -> ReplayResult:
     """Replay one pruner over full curves in a real in-memory Optuna study.
 
+    A curve shorter than the longest is a run that diverged at its last epoch: it is
+    reported epoch by epoch like the others and, if no pruner cut it first, told PRUNED
+    after its last epoch, as the search worker tells a diverged trial.  It is not counted as
+    pruned, and its epochs count in ``epochs_full``.
+
     Args:
-        curves: ground-truth validation loss per epoch (epoch 1 first), all the same length.
+        curves: ground-truth validation loss per epoch (epoch 1 first); the longest length is
+            the full budget.
         pruner: a fresh pruner instance (pruners such as Hyperband keep state).
         good: bool mask of the ground-truth good group; default :func:`good_mask`.
         seed: seeds the order in which curves become trials (and names the study, which
@@ -139,9 +145,10 @@ def replay(curves: Sequence[np.ndarray], pruner: optuna.pruners.BasePruner, *,
         1.0
     """
     arrays = [np.asarray(c, dtype=float) for c in curves]
-    if len({a.shape for a in arrays}) != 1 or arrays[0].ndim != 1:
-        raise ValueError("curves must be 1-D and of one length, but got shapes "
-                         f"{sorted({a.shape for a in arrays})}.")
+    if not arrays or any(a.ndim != 1 or a.size == 0 for a in arrays):
+        raise ValueError("curves must be a non-empty list of non-empty 1-D arrays, but got "
+                         f"shapes {sorted({a.shape for a in arrays})}.")
+    budget = max(a.size for a in arrays)
     good = good_mask(arrays) if good is None else np.asarray(good, dtype=bool)
     if good.shape != (len(arrays),):
         raise ValueError(f"good must have shape ({len(arrays)},), but got {good.shape}.")
@@ -162,15 +169,16 @@ def replay(curves: Sequence[np.ndarray], pruner: optuna.pruners.BasePruner, *,
             if trial.should_prune():
                 pruned_at[i] = epoch
                 break
-        if pruned_at[i] is None:
+        if pruned_at[i] is None and arrays[i].size == budget:
             study.tell(trial, best if math.isfinite(best) else math.nan)
         else:
             study.tell(trial, state=TrialState.PRUNED)
     finals = [t.value for t in study.get_trials(states=(TrialState.COMPLETE,))
               if t.value is not None and math.isfinite(t.value)]
     best_found = min(finals) if finals else math.nan
-    best_full = float(np.nanmin([np.nanmin(a) for a in arrays]))
-    full = arrays[0].size * len(arrays)
+    # What an unpruned search would pick: the best of the runs that did not diverge.
+    best_full = float(np.nanmin([np.nanmin(a) for a in arrays if a.size == budget]))
+    full = sum(a.size for a in arrays)
     cut = np.array([p is not None for p in pruned_at])
     n_good, wrong = int(good.sum()), int((cut & good).sum())
     return ReplayResult(pruner=label or type(pruner).__name__, epochs=spent, epochs_full=full,

@@ -2,7 +2,12 @@
 
 The calling process prepares everything once (dataset cache, Optuna study, MLflow parent
 run), recovers lost trials, then starts ``workers`` worker processes (spawn context; a single
-worker runs in a thread of this process) and shows progress until they are done.
+worker runs in a thread of this process) and shows progress until they are done.  Workers
+recover lost trials themselves before each trial (``settle``), under the shared lock.
+
+A database that stops answering only pauses the progress display here; the workers retry
+with backoff and, if it stays away, stop with a ``UserError`` that this process passes on
+(exit code 2, nothing finished is lost).
 
 Stopping: SIGINT or SIGTERM asks every worker to finish its current epoch; that trial is
 recorded as interrupted (FAIL, re-queued on resume) and the run returns exit code 130
@@ -23,8 +28,6 @@ from pathlib import Path
 from searcher.errors import UserError
 
 __all__ = ["run_study", "RunSummary", "parse_until", "deadline_of"]
-
-_RECOVER_SECONDS = 10.0
 
 
 @dataclass
@@ -116,7 +119,7 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
     from ._live import Monitor
     from ._outcomes import best_record, tally
     from ._recover import recover
-    from ._store import open_store, storage_label
+    from ._store import open_store, storage_down, storage_label
     from ._tracking import prepare_tracking
     from ._urls import mask_url
     from ._worker import WorkerArgs, worker_loop, worker_process
@@ -178,19 +181,31 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
             h.start()
         monitor = Monitor(study, opt, budget=budget, deadline=deadline, start=start,
                           live=live, echo=echo, storage=label)
-        last_recover = time.monotonic()
+
+        def quietly(fn, *a, **kw) -> bool:
+            try:
+                fn(*a, **kw)
+                return True
+            except Exception as err:  # the workers decide whether an outage is fatal
+                if not storage_down(err):
+                    raise
+                return False
         with monitor:
             while any(h.is_alive() for h in handles):
                 for h in handles:
                     h.join(timeout=monitor.interval / max(1, len(handles)))
-                monitor.update()
-                if time.monotonic() - last_recover > _RECOVER_SECONDS:
-                    recover(opt, requeue=not stop_event.is_set())
-                    last_recover = time.monotonic()
-            recover(opt, requeue=False)
-            monitor.update(final=True)
+                quietly(monitor.update)
+            if quietly(recover, opt, requeue=False):
+                monitor.update(final=True)
         if inline and errors:
             raise errors[0]
+        lost = [h.name for h in handles if not inline and h.exitcode == 2]
+        if lost:
+            raise UserError.single(
+                f"must stay reachable, but {', '.join(lost)} lost the connection to {label} "
+                "(see the errors above); every finished trial is kept there, so run the same "
+                "command again once it is back", path="--storage" if storage else
+                "search.storage")
         for h in handles:
             if not inline and h.exitcode not in (0, None):
                 notes.append(f"worker {h.name} ended with exit code {h.exitcode}; its trial "

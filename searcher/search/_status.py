@@ -1,7 +1,6 @@
 """``study_status``: where a study stands, read from its store (nothing is trained)."""
 from __future__ import annotations
 
-import logging
 from pathlib import Path
 
 import optuna
@@ -23,21 +22,13 @@ def study_status(study, storage: str | None = None, *, out: str | Path | None = 
         value, config} or None), "cpu_seconds"}``.
     """
     from ._outcomes import best_record, tally
-    from ._store import make_storage, storage_label
-    from ._urls import journal_path
+    from ._store import read_store, storage_label
 
     if out is not None:
         study.output_dir = Path(out)
     label = storage_label(study, storage)
-    url = storage or study.fixed()["search"]["storage"]
-    trials = []
-    if url or journal_path(study.output_dir).exists():
-        optuna.logging.set_verbosity(logging.WARNING)
-        try:
-            trials = optuna.load_study(study_name=study.name,
-                                       storage=make_storage(study, storage)).get_trials()
-        except KeyError:  # the store exists but holds no such study yet
-            trials = []
+    opt = read_store(study, storage, required=False)  # a study not run yet has no trials
+    trials = opt.get_trials() if opt is not None else []
     states = {s.name: 0 for s in optuna.trial.TrialState}
     for t in trials:
         states[t.state.name] += 1

@@ -7,13 +7,15 @@ passwords masked); metrics per epoch (step = epoch) sent with ``log_batch`` (at 
 a call); at the end tags ``searcher.outcome``, ``searcher.reason``, ``searcher.pruned_at`` and the
 config as ``config.yaml``.
 
-Several workers write one sqlite file at once, so every call is retried with backoff when
+Several workers (and several ``searcher run`` processes on one machine) write one sqlite file
+at once, so every call is retried with backoff when
 sqlite says the database is locked.  Any other tracking failure (a bad URI, a server that is
 down) gives one warning and switches tracking off for that process: the Optuna store, which
 holds everything analysis needs, is never held up by the tracker.
 """
 from __future__ import annotations
 
+import contextlib
 import logging
 import os
 import random
@@ -175,17 +177,46 @@ def find_study_run(tracker: Tracker, experiment_id: str, study: str):
     return runs[0] if runs else None
 
 
+@contextlib.contextmanager
+def _schema_lock(uri: str):
+    """Serialise set-up between processes that share one sqlite tracking file.
+
+    MLflow creates the sqlite schema on first use; several ``searcher run`` commands
+    started at once on one machine would race on it (and on creating the parent run).
+    """
+    if not uri.startswith("sqlite:///"):
+        yield
+        return
+    import fcntl
+
+    lock = Path(uri[len("sqlite:///"):] + ".lock")
+    lock.parent.mkdir(parents=True, exist_ok=True)
+    with open(lock, "a") as handle:
+        fcntl.flock(handle, fcntl.LOCK_EX)
+        try:
+            yield
+        finally:
+            fcntl.flock(handle, fcntl.LOCK_UN)
+
+
 def prepare_tracking(study, config: dict, output_dir: Path) -> TrackingInfo | None:
     """Create (or find) the experiment and the study's parent run; None when unreachable.
 
-    Called once by the process that starts the workers, so that creating the sqlite schema
-    never races between workers.
+    Called once by each ``searcher run`` process before it starts its workers, so that
+    creating the sqlite schema never races between workers.  Processes on other hosts that
+    share a tracking server may create a parent run at the same moment: each then keeps the
+    oldest one and deletes its own, so all children hang under one parent.
     """
     _quiet()
     uri = tracking_uri(config["tracking"]["uri"], output_dir)
     # Fail fast on an unreachable server instead of MLflow's minutes of HTTP retries.
     os.environ.setdefault("MLFLOW_HTTP_REQUEST_MAX_RETRIES", "0")
     os.environ.setdefault("MLFLOW_HTTP_REQUEST_TIMEOUT", "10")
+    with _schema_lock(uri):
+        return _prepare(study, config, output_dir, uri)
+
+
+def _prepare(study, config: dict, output_dir: Path, uri: str) -> TrackingInfo | None:
     name = config["tracking"]["experiment"] or study.name
     probe = Tracker(TrackingInfo(uri, "", "", study.name))
     if not probe.on:
@@ -210,6 +241,10 @@ def prepare_tracking(study, config: dict, output_dir: Path) -> TrackingInfo | No
             "searcher.role": STUDY_ROLE, "searcher.study": study.name,
             "searcher.study_hash": study.hash, "searcher.summary":
             str(config["study"]["summary"])[:500]})
+        oldest = find_study_run(probe, exp_id, study.name) if parent is not None else None
+        if oldest is not None and oldest.info.run_id != parent.info.run_id:
+            probe.call("delete_run", parent.info.run_id)  # a rival host was first
+            parent = oldest
     if parent is None:
         return None
     return TrackingInfo(uri, str(exp_id), parent.info.run_id, study.name)

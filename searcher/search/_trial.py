@@ -3,7 +3,7 @@
 The trial's user attributes follow the store contract in DEVELOPERS.md (``config``,
 ``study_hash``, ``data_hash``, ``outcome``, ``reason``, ``best_value``, ``best_epoch``,
 ``epochs``, ``cpu_seconds``, ``gate``, ``cost``, ``pruned_at``, ``mlflow_run_id``) plus
-``config_hash``, ``seed``, ``host``, ``pid`` and ``worker``.  The training seed of trial ``n``
+``config_hash``, ``seed``, ``host``, ``pid``, ``worker`` and ``sampler_seed``.  The training seed of trial ``n``
 is ``training.seed + n * SEED_STRIDE`` (mod 2^31), written into the stored config so the
 trial can be re-run exactly.
 """
@@ -24,6 +24,7 @@ from searcher.errors import UserError
 from ._keep import keep_best
 from ._recover import HOST
 from ._registry import SEED_STRIDE
+from ._store import storage_down
 from ._urls import public_config
 
 __all__ = ["TrialRunner", "TrialFailed", "TrialInterrupted", "trial_seed"]
@@ -71,12 +72,14 @@ class TrialRunner:
         should_stop: returns True when a signal or the deadline asks workers to stop.
         worker: worker index.
         on_start: called once the trial exists (releases the budget lock).
+        attrs: further user attributes set on every trial (e.g. ``sampler_seed``).
     """
 
     def __init__(self, study, dataset, tracker, should_stop: Callable[[], bool], worker: int,
-                 on_start: Callable[[], None] = lambda: None) -> None:
+                 on_start: Callable[[], None] = lambda: None, attrs: dict | None = None) -> None:
         self.study, self.dataset, self.tracker = study, dataset, tracker
         self.should_stop, self.worker, self.on_start = should_stop, worker, on_start
+        self.attrs = dict(attrs or {})
         self.search = study.fixed()["search"]
 
     def _record(self, trial, run_id: str, outcome: str, reason: str, config, *,
@@ -92,7 +95,8 @@ class TrialRunner:
     def __call__(self, trial: optuna.Trial) -> float:
         self.on_start()
         cpu0 = time.process_time()
-        for key, value in (("host", HOST), ("pid", os.getpid()), ("worker", self.worker)):
+        for key, value in (("host", HOST), ("pid", os.getpid()), ("worker", self.worker),
+                           *self.attrs.items()):
             trial.set_user_attr(key, value)
         config = self.study.suggest(trial)
         seed = trial_seed(config["training"]["seed"], trial.number)
@@ -113,6 +117,8 @@ class TrialRunner:
         except UserError as err:  # the drawn combination cannot be built
             self._reject(trial, run_id, config, f"cannot build: {err}", {"gate": 1.0}, cpu0)
         except Exception as err:
+            if storage_down(err):  # not the trial's fault: the worker's backoff handles it
+                raise
             log.error("trial %d failed:\n%s", trial.number, traceback.format_exc())
             self._record(trial, run_id, "failed", f"{type(err).__name__}: {err}"[:2000], config,
                          cpu_seconds=time.process_time() - cpu0)

@@ -4,21 +4,33 @@ A worker runs in its own process (``multiprocessing`` spawn context, one torch t
 for a single worker, in a thread of the calling process.  The budget counts trials in the
 store (every outcome except interrupted, plus those running), so several workers, and
 several ``searcher run`` processes sharing one store, stop together; a lock shared by the
-local workers makes the check-then-start step atomic on one machine.
+local workers makes the check-then-start step atomic on one machine.  A worker leaves only
+when the finished trials meet the budget: while the rest are still running it waits, so that
+it can take over a trial whose worker was lost (stale heartbeat, or a dead process here).
+
+A database that stops answering is retried with backoff for the grace period (4
+heartbeats); then the worker stops with a :class:`UserError` (exit code 2).  Trials already
+finished are in the database; the one in flight is found stale and retried later.
 """
 from __future__ import annotations
 
 import logging
+import os
 import signal
+import sys
+import threading
 import time
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
+from searcher.errors import UserError
+
 __all__ = ["WorkerArgs", "worker_loop", "worker_process", "load_for_run"]
 
 log = logging.getLogger("searcher")
+_LOCK_SECONDS = 60.0
 
 
 @dataclass(frozen=True)
@@ -47,20 +59,108 @@ def load_for_run(study_path: str, output_dir: str):
     return study, dataset
 
 
+class _Outage:
+    """Backoff while the database is unreachable; gives up after ``grace`` seconds."""
+
+    def __init__(self, study, storage: str | None, grace: float) -> None:
+        from ._store import storage_label
+
+        self.study, self.cli, self.grace = study, bool(storage), float(grace)
+        self.label = storage_label(study, storage)
+        self.since: float | None = None
+        self.tries = 0
+
+    def clear(self) -> None:
+        if self.since is not None:
+            log.warning("the storage %s answers again", self.label)
+        self.since, self.tries = None, 0
+
+    def wait(self, err: BaseException) -> None:
+        """Sleep before the next try, or raise ``UserError`` once the grace period is over."""
+        from ._urls import mask_url
+
+        now = time.monotonic()
+        if self.since is None:
+            self.since = now
+            log.warning("lost the storage %s (%s); retrying for up to %.0f s", self.label,
+                        type(err).__name__, self.grace)
+        left = self.grace - (now - self.since)
+        if left <= 0:
+            text = mask_url(str(err)).strip().splitlines()
+            where = {"path": "--storage"} if self.cli else {
+                "file": str(getattr(self.study, "path", "")), "path": "search.storage"}
+            raise UserError.single(
+                f"must stay reachable, but the connection to {self.label} was lost and did not "
+                f"come back within {self.grace:.0f} s ({type(err).__name__}: "
+                f"{text[0] if text else ''}); every finished trial is kept there, so run the "
+                f"same command again once the database is back", **where) from None
+        time.sleep(min(0.5 * 2 ** self.tries, left))
+        self.tries += 1
+
+
+def _quiet_heartbeat_errors() -> None:
+    """Optuna's heartbeat thread dies with a traceback when the database goes away; the
+    worker's own backoff reports the outage, so that traceback is shortened to one line."""
+    from ._store import storage_down
+
+    default = threading.excepthook
+
+    def hook(args) -> None:
+        if args.exc_value is not None and storage_down(args.exc_value):
+            log.warning("heartbeat stopped: %s", type(args.exc_value).__name__)
+            return
+        default(args)
+    threading.excepthook = hook
+
+
+def _next_step(opt, budget: int) -> str:
+    """``run`` a trial, ``wait`` for running ones (one may be lost and need a retry), or
+    ``done``."""
+    import optuna
+
+    from ._outcomes import finished
+    from ._recover import HOST, settle
+
+    settle(opt)
+    trials = opt.get_trials(deepcopy=False)
+    done = finished(trials)
+    busy = [t for t in trials if t.state == optuna.trial.TrialState.RUNNING]
+    if not budget or done + len(busy) < budget:
+        return "run"
+    if done >= budget:
+        return "done"
+    from optuna.storages._heartbeat import is_heartbeat_enabled
+
+    # Only lost trials that can be detected are worth waiting for: any on a heartbeat
+    # store, this host's on a journal (another host's journal trials wait for that host).
+    if is_heartbeat_enabled(opt._storage) or any(t.user_attrs.get("host") == HOST
+                                                 for t in busy):
+        return "wait"
+    return "done"
+
+
 def worker_loop(args: WorkerArgs, lock, should_stop: Callable[[], bool]) -> int:
     """Run trials until told to stop; returns the number of trials this worker ran."""
     import optuna
 
-    from ._outcomes import finished
-    from ._store import open_store
+    from ._recover import HOST
+    from ._registry import sampler_seed
+    from ._store import (GRACE_FACTOR, heartbeat_of, open_store, shared_store,
+                         storage_down)
     from ._tracking import Tracker
     from ._trial import TrialFailed, TrialRunner
 
     study, dataset = load_for_run(args.study_path, args.output_dir)
-    opt = open_store(study, args.storage, worker=args.index)
+    # identical commands on many hosts all have index 0: the host and process tell them apart
+    origin = f"{HOST}:{os.getpid()}" if shared_store(study, args.storage) else ""
+    opt = open_store(study, args.storage, worker=args.index, origin=origin)
+    seed = sampler_seed(study.fixed()["search"]["seed"], args.index, origin)
     # failed trials are logged by the runner with their traceback; Optuna's copy is noise
     optuna.logging.set_verbosity(optuna.logging.ERROR)
+    _quiet_heartbeat_errors()
     tracker = Tracker(args.tracking)
+    beat = heartbeat_of(study)
+    outage = _Outage(study, args.storage, GRACE_FACTOR * beat)
     held = [False]
 
     def release() -> None:
@@ -71,20 +171,32 @@ def worker_loop(args: WorkerArgs, lock, should_stop: Callable[[], bool]) -> int:
     def stop() -> bool:
         return should_stop() or (args.deadline > 0 and time.time() >= args.deadline)
 
-    runner = TrialRunner(study, dataset, tracker, stop, args.index, on_start=release)
+    runner = TrialRunner(study, dataset, tracker, stop, args.index, on_start=release,
+                         attrs={"sampler_seed": seed})
     ran = 0
     while not stop():
-        lock.acquire()
-        held[0] = True
+        step = "run"
+        # a worker killed while holding the lock never releases it: after a while the
+        # others go on without it (at worst one trial beyond the budget)
+        held[0] = lock.acquire(timeout=_LOCK_SECONDS)
         try:
-            trials = opt.get_trials(deepcopy=False)
-            busy = sum(1 for t in trials if t.state == optuna.trial.TrialState.RUNNING)
-            if args.trials and finished(trials) + busy >= args.trials:
-                break
-            opt.optimize(runner, n_trials=1, catch=(TrialFailed,), gc_after_trial=False)
-            ran += 1
+            step = _next_step(opt, args.trials)
+            if step == "run":
+                opt.optimize(runner, n_trials=1, catch=(TrialFailed,), gc_after_trial=False)
+                ran += 1
+            outage.clear()
+        except Exception as err:
+            if not storage_down(err):
+                raise
+            release()
+            outage.wait(err)
+            continue
         finally:
             release()
+        if step == "done":
+            break
+        if step == "wait":
+            time.sleep(min(1.0, beat))
     return ran
 
 
@@ -108,3 +220,6 @@ def worker_process(args: WorkerArgs, lock, stop_event) -> None:
         worker_loop(args, lock, lambda: flag[0] or stop_event.is_set())
     except KeyboardInterrupt:
         pass
+    except UserError as err:  # the storage was lost: a located message, no traceback
+        print(f"error: {err}", file=sys.stderr)
+        sys.exit(2)

@@ -28,6 +28,8 @@ DEMO_FIELDS = {
     "velocity": {"kind": "vector", "role": "input", "level": "node"},
     "pressure": {"kind": "scalar", "role": "input", "level": "node"},
     "pressure_gradient": {"kind": "vector", "role": "input", "level": "node"},
+    "strain_rate": {"kind": "traceless_symmetric_tensor", "role": "input", "level": "node"},
+    "vorticity": {"kind": "axial_vector", "role": "input", "level": "node"},
     "anisotropy": {"kind": "traceless_symmetric_tensor", "role": "target", "level": "node"},
 }
 
@@ -120,7 +122,7 @@ def task_fields(task_cfg: dict) -> dict[str, dict]:
 
     Returns:
         name -> ``{"kind", "irreps", "role", "level"}``; the demo always gives velocity,
-        pressure, pressure_gradient (inputs) and anisotropy (node target).
+        pressure, pressure_gradient, strain_rate, vorticity (inputs) and anisotropy (node target).
     """
     declared = DEMO_FIELDS if task_cfg.get("source", "demo") == "demo" else task_cfg["fields"]
     return {name: {"kind": f["kind"], "irreps": FIELD_KINDS[f["kind"]], "role": f["role"],

@@ -15,11 +15,12 @@ __all__ = ["collate", "TrainBatches"]
 
 
 def _with_geometry(model: torch.nn.Module, batch):
-    # Models with an equivariant edge embedding expose ``.geometry``; baselines do not.
+    # Models with an equivariant edge embedding expose ``.geometry``; baselines do not.  The
+    # batches are never changed afterwards, so the whole edge context is kept on them.
     if getattr(model, "geometry", None) is not None:
         from searcher.models import attach_geometry
 
-        attach_geometry(model, batch)
+        attach_geometry(model, batch, context=True)
     return batch
 
 

@@ -84,7 +84,7 @@ class BlockErrors:
         return out
 
 
-@torch.no_grad()
+@torch.inference_mode()
 def predict_errors(model: torch.nn.Module, batches, dataset) -> BlockErrors:
     """Run ``model`` over collated ``batches`` and accumulate :class:`BlockErrors`."""
     was_training = model.training

@@ -38,9 +38,11 @@ def test_edge_cap_keeps_nearest_and_warns():
 def test_dataset_contract(small_task):
     ds = build_dataset(small_task)
     g = ds.graphs[0]
-    assert set(ds.fields) == {"velocity", "pressure", "pressure_gradient", "anisotropy"}
+    assert set(ds.fields) == {"velocity", "pressure", "pressure_gradient", "strain_rate",
+                              "vorticity", "anisotropy"}
     assert ds.target.name == "anisotropy" and [f.name for f in ds.inputs] == [
-        "velocity", "pressure", "pressure_gradient"]
+        "velocity", "pressure", "pressure_gradient", "strain_rate", "vorticity"]
+    assert g.strain_rate.shape == (14, 5) and g.vorticity.shape == (14, 3)
     assert g.pos.dtype == torch.float32 and g.pos.shape == (14, 3)
     torch.testing.assert_close(g.pos.mean(0), torch.zeros(3), atol=1e-6, rtol=0)
     src, dst = g.edge_index
@@ -153,4 +155,5 @@ def test_isolated_nodes_warned_and_no_edges_is_an_error(small_task):
 def test_describe_fields_demo(default_task):
     fields = describe_fields(default_task)
     assert {k: f.irreps for k, f in fields.items()} == {
-        "velocity": "1o", "pressure": "0e", "pressure_gradient": "1o", "anisotropy": "2e"}
+        "velocity": "1o", "pressure": "0e", "pressure_gradient": "1o", "strain_rate": "2e",
+        "vorticity": "1e", "anisotropy": "2e"}

@@ -102,3 +102,27 @@ def test_lamb_oseen_far_field_is_a_point_vortex():
                                np.array([[r, 0.0, 0.0]]))
     assert u[0, 1] == pytest.approx(gamma / (2 * np.pi * r), rel=1e-9)
     assert p[0] == pytest.approx(-gamma ** 2 / (8 * np.pi ** 2 * r ** 2), rel=1e-3)
+
+
+@pytest.mark.parametrize("index", range(12))
+def test_demo_vorticity_is_the_curl_and_an_axial_vector(index):
+    # Dombre et al. 1986 (J. Fluid Mech. 167): the ABC flow is Beltrami, curl u = u at unit
+    # wavenumber; scaled to length L it is curl u = u / L. Under a placement
+    # u'(x) = R u(R^T x) the curl becomes det(R) R curl u (an axial vector), so the probed
+    # vorticity equals +-u'/L by the sign of det(R).
+    from searcher.data import demo_sample, to_cartesian
+    from searcher.data._demo import _placement
+    from searcher.spec import defaults
+
+    demo = defaults()["task"]["demo"] | {"probes": 10, "families": ["abc", "burgers"]}
+    s = demo_sample(demo, index)
+    u = to_cartesian("vector", s.fields["velocity"])
+    w = to_cartesian("axial_vector", s.fields["vorticity"])
+    if s.family == "abc":
+        place = _placement(np.random.default_rng([demo["seed"], index, 1]), demo["region"],
+                           demo["reflect"])
+        sign = np.sign(np.linalg.det(place.rotation))
+        np.testing.assert_allclose(w, sign * u / s.info["params"]["L"], atol=1e-10)
+    s_rate = to_cartesian("traceless_symmetric_tensor", s.fields["strain_rate"])
+    np.testing.assert_allclose(s_rate, np.swapaxes(s_rate, 1, 2), atol=1e-12)
+    np.testing.assert_allclose(np.trace(s_rate, axis1=1, axis2=2), 0.0, atol=1e-10)

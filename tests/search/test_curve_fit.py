@@ -7,7 +7,8 @@ import numpy as np
 import optuna
 import pytest
 
-from searcher.search._curve_fit import _SHAPES, CurveFitPruner, _fit_shape, prob_beats
+from searcher.search._curve_fit import (_SHAPES, _TRUST_FRACTION, CurveFitPruner, _fit_shape,
+                                        crossing_prior, prob_beats)
 
 # Curve families of Domhan, Springenberg & Hutter, IJCAI 2015 (Table 1), written for a falling
 # log10 loss: pow3 y = c + a x^-alpha, exp3 y = c + a exp(-b x).
@@ -78,10 +79,45 @@ def _first_prune(study, values):
     return None
 
 
-def test_pruner_prunes_flat_curve_only_after_min_epochs():
+def test_pruner_prunes_a_stalled_curve_at_min_epochs_but_spares_a_flat_start():
     study = _study(CurveFitPruner(min_epochs=8, max_epochs=30))
+    # Fell two decades, then stalled far above the target: the fit is trusted at min_epochs.
+    stalled = np.r_[1.0, 0.1, np.full(28, 0.01)] * (1 + 0.01 * np.sin(np.arange(30)))
+    assert _first_prune(study, stalled) == 8
+    # Flat since epoch 1 and unlike every finished curve: it may still be on a plateau, so
+    # it keeps its chance until _TRUST_FRACTION of the 30-epoch budget (epoch 15).
     flat = 0.1 * (1 + 0.01 * np.sin(np.arange(30)))
-    assert _first_prune(study, flat) == 8
+    assert _first_prune(study, flat) == math.ceil(_TRUST_FRACTION * 30)
+
+
+def test_crossing_prior_counts_look_alike_finished_curves():
+    x = np.arange(30)
+    plateau = np.r_[np.full(8, 0.03), 0.03 * 10.0 ** (-0.3 * np.arange(1, 23))]
+    fast = 10.0 ** (-3.0 * (1 - np.exp(-x / 1.5)))
+    finished, finals = [plateau, plateau * 1.1, fast], [1e-5, 1.1e-5, 1e-3]
+    # Hand count: the running flat curve matches both plateau curves (RMS 0 and 0.04
+    # decade), not the fast one, and both ended below the target.
+    assert crossing_prior(np.full(6, 0.03), finished, finals, target=1e-4) == (2, 2)
+    assert crossing_prior(fast[:6] * 1.05, finished, finals, target=1e-4) == (0, 1)
+    nan_curve = np.r_[np.nan, np.full(5, 0.03)]
+    assert crossing_prior(nan_curve, finished, finals, target=1e-4) == (2, 2)
+    assert crossing_prior(np.full(6, 0.03), [], [], target=1e-4) == (0, 0)
+
+
+def test_prior_spares_a_plateau_curve_that_finished_ones_show_will_drop():
+    x = np.arange(1, 31)
+    plateau = np.where(x <= 20, 0.03, 0.03 * 10.0 ** (-0.3 * (x - 20)))
+    study = _study(CurveFitPruner(min_epochs=5, max_epochs=30, rank=3),
+                   finished=(1e-4, 2e-4, 3e-4))
+    for _ in range(2):                 # two finished look-alikes that dropped past 3e-4
+        t = study.ask()
+        for epoch, v in enumerate(plateau, start=1):
+            t.report(float(v), epoch)
+        study.tell(t, float(plateau.min()))
+    # Past _TRUST_FRACTION (epoch 15) the fit alone would cut a flat curve; the prior,
+    # which saw curves like it sit flat to epoch 20 and then drop, keeps it.
+    assert _first_prune(study, np.full(18, 0.03)) is None
+    assert _first_prune(study, np.r_[1.0, np.full(17, 0.03)]) is not None   # unlike them
 
 
 def test_pruner_never_prunes_a_curve_beating_kth_best():
@@ -108,11 +144,11 @@ def test_pruner_never_prunes_at_max_epochs():
 
 def test_pruner_handles_nan():
     study = _study(CurveFitPruner(min_epochs=5, max_epochs=30))
-    values = np.full(30, 0.1)
+    values = np.r_[1.0, np.full(29, 0.01)]
     values[[1, 4, 6]] = np.nan
     values[5] = np.inf
     # Epochs 2, 5, 6, 7 are not finite, so the 5th finite point (the fewest fitted) arrives
-    # at epoch 9, past min_epochs; the flat curve is pruned then.
+    # at epoch 9, past min_epochs; the stalled curve is pruned then.
     assert _first_prune(study, values) == 9
     study2 = _study(CurveFitPruner(min_epochs=5, max_epochs=30))
     assert _first_prune(study2, np.full(29, np.nan)) is None

@@ -67,8 +67,8 @@ def test_replay_is_deterministic_and_checks_shapes():
     a = replay(curves, make(), good=slow, seed=1)
     b = replay(curves, make(), good=slow, seed=1)
     assert a.to_dict() == b.to_dict()
-    with pytest.raises(ValueError, match="one length"):
-        replay([np.ones(5), np.ones(6)], optuna.pruners.NopPruner())
+    with pytest.raises(ValueError, match="1-D"):
+        replay([np.ones(5), np.ones((2, 3))], optuna.pruners.NopPruner())
     with pytest.raises(ValueError, match="good"):
         replay(curves, optuna.pruners.NopPruner(), good=np.ones(3, bool))
 
@@ -77,3 +77,13 @@ def test_measure_call_cost_reports_positive_times():
     cost = measure_call_cost(points=30, calls=3)
     assert cost["points"] == 30 and cost["calls"] == 3
     assert 0.0 < cost["median_ms"] <= cost["max_ms"] and math.isfinite(cost["max_ms"])
+
+
+def test_short_curve_is_a_diverged_run_not_a_pruned_one():
+    curves, slow = crossing_curves(2, 3, epochs=10, seed=5)
+    curves[2] = np.array([5.0, 9e3])           # diverged at epoch 2, as fit stops it
+    r = replay(curves, optuna.pruners.NopPruner(), good=slow, seed=0)
+    assert r.epochs == r.epochs_full == 4 * 10 + 2 and r.pruned == 0
+    states = [t.state for t in r.study.trials]
+    assert states.count(optuna.trial.TrialState.PRUNED) == 1     # told as the worker does
+    assert r.best_ratio == 1.0

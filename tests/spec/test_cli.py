@@ -56,8 +56,8 @@ def test_sampling_deterministic_across_processes():
 def test_human_output(capsys):
     assert main(["check", "studies/demo.yaml", "--samples", "2"]) == 0
     out = capsys.readouterr().out
-    assert "dimensions: 15 (13 searched, 2 derived)" in out
-    assert "discrete part: 93312 combinations" in out
+    assert "dimensions: 17 (15 searched, 2 derived)" in out
+    assert "discrete part: 497664 combinations" in out
     assert "conditional: model.radial.power  (only if model.radial.envelope = polynomial)" in out
     assert out.count("\nsample ") == 2
 

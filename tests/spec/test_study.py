@@ -28,9 +28,10 @@ def test_demo_space_summary():
     names = [d.name for d in study.dimensions]
     assert study.name == "demo" and study.output_dir == Path("runs/demo")
     assert study.conditional_dimensions == ["model.radial.power"]
-    # 2 families * 2 lmax * 3 mult * 2 taper * 3 node_attrs * 3 inputs * 2 invariants *
-    # 3 bases * 4 counts * 3 powers * 3 layers * 2 norms (counted by hand from demo.yaml)
-    assert study.discrete_size == 2 * 2 * 3 * 2 * 3 * 3 * 2 * 3 * 4 * 3 * 3 * 2
+    # 2 families * 2 lmax * 3 mult * 2 taper * 2 parities * 3 node_attrs * 4 inputs *
+    # 2 input_products * 2 invariants * 3 bases * 4 counts * 3 powers * 3 layers * 2 norms
+    # (counted by hand from demo.yaml)
+    assert study.discrete_size == 2 * 2 * 3 * 2 * 2 * 3 * 4 * 2 * 2 * 3 * 4 * 3 * 3 * 2
     assert names.index("model.edge_attrs.lmax") > names.index("model.hidden.lmax")
     assert {d.kind for d in study.dimensions} == {"choice", "int", "float", "derived"}
 
@@ -52,7 +53,7 @@ def test_sampling_is_deterministic_and_seed_dependent():
 def test_derived_values_follow_their_inputs():
     for cfg in load_study(DEMO).sample(12, seed=3):
         assert cfg["model"]["edge_attrs"]["lmax"] == max(cfg["model"]["hidden"]["lmax"], 2)
-        assert cfg["model"]["radial"]["cutoff"] == cfg["task"]["graph"]["radius"] == 0.75
+        assert cfg["model"]["radial"]["cutoff"] == cfg["task"]["graph"]["radius"] == 0.8
 
 
 def test_optuna_suggestions_resolve_back_to_the_same_config():

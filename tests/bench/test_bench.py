@@ -1,0 +1,78 @@
+"""scripts/bench pieces on tiny sizes: every figure is produced (no timing is asserted)."""
+from __future__ import annotations
+
+import copy
+
+import pytest
+import torch
+
+from searcher.bench import (GOALS, format_table, loop_vs_reference, reference_module,
+                            run_bench, sized_config)
+from searcher.bench._suite import _demo
+from searcher.models import build_model
+from searcher.train import fidelity_graphs, fit
+
+TINY_DEMO = {"samples": 8, "probes": 12}
+TINY_PLAN = {"sizes": (1,), "families": ("gated",), "epochs": 1, "repeats": 1,
+             "flop_steps": 1, "scale_trials": 2, "scale_epochs": 1, "overhead_trials": 2,
+             "overhead_epochs": 1, "analysis_n": 200, "demo": TINY_DEMO}
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    return _demo(tmp_path_factory.mktemp("cache"), TINY_DEMO)
+
+
+def test_reference_loop_does_the_same_work(demo):
+    # Same initial weights, same graphs, same seeded batches and Adam settings: the
+    # hand-written loop and fit must agree on the validation curve (common practice for a
+    # fair side-by-side timing: both sides compute the same thing).
+    dataset, base = demo
+    cfg = sized_config(base, "gated", 1, 2)
+    cfg["model"]["hidden"]["multiplicity"] = 2
+    torch.manual_seed(0)
+    model = build_model(cfg["model"], dataset.fields, dataset.target.name)
+    init = copy.deepcopy(model.state_dict())
+    ours = fit(model, dataset, cfg).curve
+    model.load_state_dict(init)
+    train, val = fidelity_graphs(dataset, cfg)
+    t = cfg["training"]
+    theirs = reference_module().train(
+        model, train, val, dataset.target.name, epochs=2, batch_size=t["batch_size"],
+        learning_rate=t["learning_rate"], clip=t["clip"], seed=t["seed"])
+    assert theirs == pytest.approx(ours, rel=1e-4)
+
+
+def test_loop_ratio_rows(demo):
+    dataset, base = demo
+    rows = loop_vs_reference(dataset, base, sizes=(1,), families=("gated",), epochs=1,
+                             repeats=1)
+    assert [(r["family"], r["lmax"]) for r in rows] == [("gated", 1)]
+    assert rows[0]["ratio"] == pytest.approx(rows[0]["reference_s"] / rows[0]["ours_s"])
+
+
+def test_in_process_figures_and_table(tmp_path):
+    record = run_bench(quick=True, cache=tmp_path, plan=TINY_PLAN, echo=lambda line: None,
+                       only=("loop_vs_reference", "flop_utilisation", "analysis_10k"))
+    figs = record["figures"]
+    assert set(figs) == {"loop_vs_reference", "flop_utilisation", "analysis_10k"}
+    flop = figs["flop_utilisation"][0]
+    assert flop["madds_per_step"] > 0 and 0 < flop["fraction"]
+    assert flop["fraction"] == pytest.approx(flop["madds_per_s"] / flop["matmul_madds_per_s"])
+    table = format_table(record)
+    for name in figs:
+        assert name in table
+    assert record["machine"]["nproc"] >= 1 and record["machine"]["torch"] == torch.__version__
+
+
+@pytest.mark.slow
+def test_sweep_figures(tmp_path):
+    record = run_bench(quick=True, cache=tmp_path, plan=TINY_PLAN, echo=lambda line: None,
+                       only=("worker_scaling", "overhead"))
+    scale, over = record["figures"]["worker_scaling"], record["figures"]["overhead"]
+    assert scale["per_hour_1"] > 0 and scale["per_hour_2"] > 0
+    assert over["trials"] == 2 and 0 <= over["fraction"] <= 1
+    assert over["outside_s"] == pytest.approx(over["trial_s"] - over["training_s"], abs=1e-6)
+    table = format_table(record)
+    assert all(name in table for name in ("worker_scaling", "overhead"))
+    assert set(GOALS) >= set(record["figures"])

@@ -1,0 +1,71 @@
+"""bench_pruners on a tiny ground truth: structure, invariants, cache reuse, crossing count."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import yaml
+
+from searcher.bench._pruners import (bench_pruners, crossing_pairs, format_bench_pruners,
+                                     truth_curves)
+
+TINY = {
+    "study": {"name": "tiny-bench"},
+    "task": {"source": "demo", "demo": {"samples": 8, "probes": 10, "seed": 3},
+             "graph": {"rule": "neighbours", "neighbours": 4},
+             "split": {"fractions": [0.5, 0.25, 0.25], "hold_out": [], "stress": []}},
+    "model": {"family": "gated", "hidden": {"lmax": 1, "multiplicity": 2}, "layers": 1,
+              "radial": {"count": 4}, "width": 8, "node_inputs": ["velocity"]},
+    "training": {"epochs": 4, "batch_size": 2,
+                 "learning_rate": {"real": [0.0003, 0.03], "log": True}},
+    "search": {"pruner": {"kind": "curve_fit", "min_epochs": 1, "max_epochs": 4, "eta": 2}},
+}
+
+
+def _tiny(tmp_path):
+    doc = {**TINY, "output": {"folder": str(tmp_path / "out")}}
+    path = tmp_path / "tiny.yaml"
+    path.write_text(yaml.safe_dump(doc, sort_keys=False))
+    return path
+
+
+def test_bench_pruners_tiny_ground_truth(tmp_path):
+    path, cache = _tiny(tmp_path), tmp_path / "cache"
+    out = bench_pruners(True, study_path=path, cache_dir=cache, workers=1, n=6, epochs=4,
+                        log=lambda s: None)
+    assert {"demo", "demo_warmup", "crossing", "call_cost"} <= set(out)
+    for name in ("demo", "demo_warmup", "crossing"):
+        row = out[name]
+        if "pruners" not in row:          # every tiny run diverged: said so, nothing replayed
+            assert row["notes"]
+            continue
+        table = row["pruners"]
+        assert set(table) == {"none", "median", "hyperband", "curve_fit"}
+        # No pruning spends every epoch and keeps the best run (definition of the ratios).
+        assert table["none"]["epochs_ratio"] == 1.0 and table["none"]["best_ratio"] == 1.0
+        assert table["none"]["pruned"] == 0
+        for r in table.values():
+            assert 0.0 < r["epochs_ratio"] <= 1.0 and 0.0 <= r["wrongly_pruned_rate"] <= 1.0
+            assert r["best_ratio"] >= 1.0 or math.isnan(r["best_ratio"])
+            assert r["good_size"] >= 1
+        assert row["crossing_pairs"] >= 0 and 0.0 < row["oracle_epochs_ratio"] <= 1.0
+        assert isinstance(row["goal_met"], bool)
+    assert out["crossing"]["pruners"]["none"]["good_size"] == 2
+    text = format_bench_pruners(out)
+    assert "[crossing]" in text and "curve_fit" in text
+    # The ground truth is cached: the same key is read back, not retrained.
+    again = truth_curves(path, 6, seed=0, epochs=4, cache_dir=cache, workers=1)
+    assert again["cached"] and len(again["curves"]) == 6
+    assert again["path"] == out["demo"].get("truth", again["path"])
+
+
+def test_crossing_pairs_counts_order_swaps():
+    # Hand count: a starts behind b and c and ends ahead of both (2 pairs); b and c keep
+    # their order; d ties b within the noise at both ends (no pair).
+    a = 10.0 ** np.array([-1.0, -4.0])
+    b = 10.0 ** np.array([-2.0, -3.0])
+    c = 10.0 ** np.array([-2.5, -3.5])
+    d = 10.0 ** np.array([-2.01, -3.01])
+    assert crossing_pairs([a, b, c], at=1) == 2
+    assert crossing_pairs([b, d], at=1) == 0
+    assert crossing_pairs([a, np.array([1.0])], at=2) == 0    # a diverged run is left out
