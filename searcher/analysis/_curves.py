@@ -25,8 +25,11 @@ FEATURES = ("final_level", "best_level", "late_slope", "mean_level", "plateaus",
 GOOD_LABEL = "converges deep"
 # The good group must sit this far (decades of median best level) below the next group.
 GOOD_GAP_DECADES = 0.5
-GOOD_RULE = ("the group whose median best level is lowest and at least "
-             f"{GOOD_GAP_DECADES} decade below the next group's")
+# ... and be a minority: the few that stand out, not the bulk of the study.
+GOOD_MAX_SHARE = 0.5
+GOOD_RULE = ("the group whose median best level is lowest, at least "
+             f"{GOOD_GAP_DECADES} decade below the next group's, and holding at most "
+             f"{GOOD_MAX_SHARE:.0%} of the curves")
 # Smallest meaningful spread per feature; below it differences are treated as noise.
 _FLOORS = np.array([0.2, 0.2, 0.3, 0.2, 1.0, 0.03, 0.25])
 # Levels decide "good", so they weigh more than shape.
@@ -182,7 +185,12 @@ def find_groups(curves) -> CurveGroups:
     good, threshold, note = None, None, ""
     if len(order) >= 2:
         low, nxt = medians[order[0]][1], medians[order[1]][1]
-        if nxt - low >= GOOD_GAP_DECADES:
+        share = float(np.mean(ids == order[0]))
+        if share > GOOD_MAX_SHARE:
+            note = (f"no distinct good group: the lowest group holds {share:.0%} of the curves "
+                    f"(rule: at most {GOOD_MAX_SHARE:.0%}); it is the bulk of the study, not "
+                    f"a few configurations that stand out")
+        elif nxt - low >= GOOD_GAP_DECADES:
             names[order[0]] = good = GOOD_LABEL
             worst_in = feats[ids == order[0], 1].max()
             threshold = float((worst_in + nxt) / 2)

@@ -61,3 +61,13 @@ def test_group_curves_public_api_and_variable_lengths():
     labels = group_curves(deep + flat)
     assert labels[:3] == [GOOD_LABEL] * 3
     assert len(set(labels[3:])) == 1 and labels[3] != GOOD_LABEL
+
+
+def test_lowest_group_that_is_the_bulk_is_not_the_good_group():
+    # Nine similar curves and one that blew up: the nine are the study's bulk, not "a few
+    # configurations two decades below the rest" (the rule stated in GOOD_RULE).
+    rng = np.random.default_rng(0)
+    bulk = [np.geomspace(1.0, 0.3, 12) * np.exp(rng.normal(0, 0.01, 12)) for _ in range(9)]
+    result = find_groups(bulk + [np.geomspace(1.0, 1e5, 12)])
+    assert result.good is None and "bulk" in result.note
+    assert GOOD_LABEL not in result.labels
