@@ -9,12 +9,14 @@ Conventions (derived here, used everywhere in the package):
 * anisotropy ``b = ⟨u'u'⟩/(2k) − I/3``, so the linear eddy-viscosity model
   ``⟨u'u'⟩ = (2/3)k I − 2 C_μ (k²/ε) S`` reads ``b = −C_μ Ŝ`` with ``Ŝ = (k/ε) S``.
 
-Time scale rule: ``τ = k/ε = c_τ / (s + w + ω0)`` with ``s = √(2 S:S)``,
-``w = √(2 Ω:Ω)``, ``c_τ = 3.33`` and ``ω0 = 1e-12``.  Why: in equilibrium shear layers
-``S k/ε ≈ 1/√C_μ ≈ 3.33`` (common practice), so a pure shear gets its equilibrium time
-scale; the rule bounds ``s̄ = τs`` and ``w̄ = τw`` by ``c_τ``, which keeps the target bounded,
-frame independent (it only uses invariants) and independent of the flow's speed scale;
-``ω0`` only removes 0/0 where the gradient vanishes (the target is then isotropic, b = 0).
+Time scale rule: ``τ = k/ε = c_τ / (ω0 + s + w)`` with ``s = √(2 S:S)``,
+``w = √(2 Ω:Ω)``, ``c_τ = 3.33`` and a background rate ``ω0 = 2`` (flow units).  Why: in
+equilibrium shear layers ``S k/ε ≈ 1/√C_μ ≈ 3.33`` (common practice), so where the mean
+flow is strong (``s + w ≫ ω0``) a pure shear gets its equilibrium time scale; where it is
+weak the turbulence keeps its own time scale ``c_τ/ω0`` instead of one that grows without
+bound.  The rule bounds ``s̄ = τs`` and ``w̄ = τw`` by ``c_τ``, which keeps the target
+bounded and frame independent (it only uses invariants), and makes ``b`` a smooth function of
+the local ``S`` and ``Ω`` (``b = 0`` where the gradient vanishes).
 
 Model: Shih, Zhu & Lumley 1993 (NASA TM 105993) as summarised in REFERENCES.md:
 ``C_μ = (2/3)/(1.25 + s̄ + 0.9 w̄)`` and
