@@ -62,20 +62,21 @@ def storage_label(study, storage: str | None = None) -> str:
     return mask_url(url) if url else str(journal_path(study.output_dir))
 
 
-def storage_down(err: BaseException) -> bool:
-    """Whether ``err`` says the database connection failed (as opposed to a bug).
+def storage_down(err: BaseException):
+    """The connection error behind ``err`` if the database connection failed (as opposed
+    to a bug), else None.
 
-    Optuna wraps SQLAlchemy's errors in ``StorageInternalError``; the cause tells."""
+    Optuna wraps SQLAlchemy's errors in ``StorageInternalError`` (and may raise another
+    error while handling one); the chain of causes tells."""
     from sqlalchemy import exc
 
     seen = 0
     while err is not None and seen < 8:
-        if isinstance(err, (exc.OperationalError, exc.InterfaceError, exc.DisconnectionError)):
-            return True
-        if isinstance(err, exc.DBAPIError) and err.connection_invalidated:
-            return True
+        if isinstance(err, (exc.OperationalError, exc.InterfaceError, exc.DisconnectionError)) \
+                or isinstance(err, exc.DBAPIError) and err.connection_invalidated:
+            return err
         err, seen = err.__cause__ or err.__context__, seen + 1
-    return False
+    return None
 
 
 def _hide(text: str, url: str) -> str:

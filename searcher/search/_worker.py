@@ -86,7 +86,8 @@ class _Outage:
                         type(err).__name__, self.grace)
         left = self.grace - (now - self.since)
         if left <= 0:
-            text = mask_url(str(err)).strip().splitlines()
+            text = [line for line in mask_url(str(err)).strip().splitlines()
+                    if line.strip() and not line.startswith("(Background")]
             where = {"path": "--storage"} if self.cli else {
                 "file": str(getattr(self.study, "path", "")), "path": "search.storage"}
             raise UserError.single(
@@ -186,10 +187,11 @@ def worker_loop(args: WorkerArgs, lock, should_stop: Callable[[], bool]) -> int:
                 ran += 1
             outage.clear()
         except Exception as err:
-            if not storage_down(err):
+            cause = storage_down(err)
+            if cause is None:
                 raise
             release()
-            outage.wait(err)
+            outage.wait(cause)
             continue
         finally:
             release()

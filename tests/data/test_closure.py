@@ -44,24 +44,27 @@ def test_linear_model_log_layer():
 
 
 def test_time_scale_gives_equilibrium_shear_rate():
-    # Simple shear has s = w = γ, so the rule τ = c_τ/(s + w) gives s̄ = τ s = c_τ/2 (derived).
-    g = np.zeros((1, 3, 3))
-    g[0, 0, 1] = 2.5
-    s, w = strain_rotation(g)
-    tau = time_scale(s, w)
-    assert tau[0] * 2.5 == pytest.approx(3.33 / 2, rel=1e-10)
+    # Simple shear has s = w = γ, so the rule τ = c_τ/(ω0 + s + w) gives s̄ = τ s =
+    # c_τ γ/(2 + 2γ) (derived), tending to c_τ/2 in strong shear.
+    for rate, expected in ((2.5, 3.33 * 2.5 / (2 + 5.0)), (1e9, 3.33 / 2)):
+        g = np.zeros((1, 3, 3))
+        g[0, 0, 1] = rate
+        s, w = strain_rotation(g)
+        assert time_scale(s, w)[0] * rate == pytest.approx(expected, rel=1e-8)
 
 
 def test_szl_anisotropy_symmetric_traceless_realizable_and_scale_free():
-    # b symmetric, traceless, eigenvalues in [−1/3, 2/3] (Schumann 1977); the time-scale
-    # rule makes b independent of the flow's speed scale (derived: degree 0 in G).
+    # b symmetric, traceless, eigenvalues in [−1/3, 2/3] (Schumann 1977); where the mean flow
+    # dominates the background rate, the time-scale rule makes b independent of the flow's
+    # speed scale (derived: degree 0 in G as ω0/(s + w) → 0), and b → 0 as G → 0.
     g = 4 * _gradients(64)
     b, _ = make_realizable(szl_anisotropy(g))
     np.testing.assert_allclose(b, np.swapaxes(b, 1, 2), atol=1e-14)
     np.testing.assert_allclose(np.trace(b, axis1=1, axis2=2), 0, atol=1e-13)
     eig = np.linalg.eigvalsh(b)
     assert eig.min() >= -1 / 3 - 1e-12 and eig.max() <= 2 / 3 + 1e-12
-    np.testing.assert_allclose(szl_anisotropy(7.0 * g), szl_anisotropy(g), atol=1e-13)
+    np.testing.assert_allclose(szl_anisotropy(7e8 * g), szl_anisotropy(1e8 * g), atol=1e-7)
+    assert np.abs(szl_anisotropy(1e-9 * g)).max() < 1e-8
 
 
 def test_make_realizable_scales_toward_isotropy():
