@@ -110,6 +110,9 @@ def make_norm(kind: str, irreps) -> torch.nn.Module:
             "instance": lambda: InstanceNorm(irreps)}[kind]()
 
 
+HEAD_INIT_SCALE = 0.1
+
+
 class Head(torch.nn.Module):
     """Hidden features → target irreps: a linear plus an aggregated product with edge SH.
 
@@ -128,6 +131,13 @@ class Head(torch.nn.Module):
                                                self.irreps_out))
         self.aggregate = aggregate
         self.graph_level = graph_level
+        # Start with outputs a tenth of unit scale: the targets are normalised to unit RMS
+        # norm per block, so an untrained network's O(1) components would begin far above
+        # the loss of predicting zero and spend its first epochs shrinking (small output
+        # initialisation is common practice; zero would blind the equivariance gate).
+        with torch.no_grad():
+            for p in self.parameters():
+                p.mul_(HEAD_INIT_SCALE)
 
     def forward(self, h: torch.Tensor, ctx: EdgeContext) -> torch.Tensor:
         out = self.linear(h) + self.aggregate(self.tp(h[ctx.src], ctx.edge_attr), ctx)

@@ -27,8 +27,27 @@ best grid point; the prediction at X is Student-t (degrees of freedom n - k) wit
 residual variance plus the parameter variance propagated through the Jacobian covariance;
 shapes are mixed with BIC weights.
 
-Known limit: a curve still flat on its plateau is extrapolated as flat, like any curve
-fit; set ``min_epochs`` past the plateaus a search space is known to produce.
+A curve fit alone cannot see the drop that ends a plateau, so the decision adds three rules
+around it (all deterministic):
+
+1. *Mid-drop*: while the best so far falls faster than ``max(0.1, 3 noise scales)`` decades
+   per epoch (over the last two epochs), no fit can place the asymptote: never prune.
+2. *Empirical crossing prior*: the finished (COMPLETE) trials whose log curves lie within
+   0.25 decade RMS of the running one over the epochs seen (:func:`crossing_prior`) are its
+   look-alikes; ``hits`` of those ``m`` ended at or below the target.  The fit counts as one
+   pseudo-observation beside them (a beta-binomial blend): prune when
+   ``(hits + P_fit) / (m + 1) < threshold``.  Many look-alikes that all failed make pruning
+   decisive; one look-alike that later dropped past the target is enough to spare a curve.
+3. *Plateau guard*: with no look-alike, a curve whose best is still within noise of its first
+   value (it has not started to learn) is not judged by the fit before half the budget.
+
+Related work: LC-PFN (Adriaensen et al., NeurIPS 2023) replaces the parametric mixture by a
+prior-fitted network trained on curves sampled from the same families; we keep the
+parametric fit because it needs no trained network and no GPU.
+
+Known limit: before any look-alike has finished, a curve that has left its plateau and
+slowed down is judged by the fit alone, and the ground-truth good group is judged against
+the k-th best (``rank``), not against "better than the rest".
 """
 from __future__ import annotations
 
