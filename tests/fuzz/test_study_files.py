@@ -1,0 +1,81 @@
+"""Mutated study files: each is valid (exit 0) or a located error (exit 2), never a crash."""
+from __future__ import annotations
+
+import copy
+import tempfile
+from pathlib import Path
+
+import yaml
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from tests.search.conftest import BASE
+
+from ._harness import run_cli
+
+ODD = st.one_of(
+    st.none(), st.booleans(), st.integers(min_value=-2 ** 70, max_value=2 ** 70),
+    st.floats(allow_nan=True, allow_infinity=True), st.text(max_size=20),
+    st.just("\u202e\u0000x"), st.just("ÿ" * 300), st.lists(st.integers(), max_size=3),
+    st.dictionaries(st.text(max_size=5), st.integers(), max_size=2))
+
+
+def _paths(doc, prefix=()):
+    for key, value in doc.items():
+        yield prefix + (key,)
+        if isinstance(value, dict):
+            yield from _paths(value, prefix + (key,))
+
+
+PATHS = sorted(_paths(BASE))
+
+
+def _nest(depth: int):
+    value = 1
+    for _ in range(depth):
+        value = {"x": value}
+    return value
+
+
+@st.composite
+def mutated(draw):
+    doc = copy.deepcopy(BASE)
+    for _ in range(draw(st.integers(1, 4))):
+        path = draw(st.sampled_from(PATHS))
+        parent = doc
+        for key in path[:-1]:
+            parent = parent.get(key) if isinstance(parent, dict) else None
+        if not isinstance(parent, dict):
+            continue
+        action = draw(st.sampled_from(["delete", "swap", "huge", "nest", "unicode_key"]))
+        if action == "delete":
+            parent.pop(path[-1], None)
+        elif action == "swap":
+            parent[path[-1]] = draw(ODD)
+        elif action == "huge":
+            parent[path[-1]] = draw(st.sampled_from([10 ** 40, -10 ** 40, 1e308, 2 ** 63]))
+        elif action == "nest":
+            parent[path[-1]] = _nest(draw(st.integers(5, 200)))
+        else:
+            parent[draw(st.text(min_size=1, max_size=8))] = draw(ODD)
+    text = yaml.safe_dump(doc, sort_keys=False, allow_unicode=True)
+    if draw(st.booleans()):  # anchors and aliases, including a many-times-reused one
+        text = "defs: &a {lmax: 1, multiplicity: 2}\n" + text.replace(
+            "hidden:\n", "hidden: *a\nhidden_was:\n", 1)
+    if draw(st.integers(0, 9)) == 0:  # text-level damage: cut the file anywhere
+        text = text[:draw(st.integers(0, len(text)))]
+    return text
+
+
+@settings(max_examples=200, deadline=None, derandomize=True,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+@given(mutated())
+def test_mutated_study_is_valid_or_a_located_error(text):
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "fuzzed.yaml"
+        path.write_text(text, encoding="utf-8")
+        code, out = run_cli(["check", str(path), "--samples", "1"])
+    assert "Traceback" not in out
+    assert code in (0, 2), out
+    if code == 2:
+        assert "error:" in out and "fuzzed.yaml" in out, out
