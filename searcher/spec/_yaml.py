@@ -59,13 +59,29 @@ def _tab_problems(text: str, file: str) -> list[Problem]:
     return out
 
 
+# Aliases may repeat a subtree many times ("billion laughs") or refer to themselves; a study
+# file has a few hundred values, so these bounds only stop such files.
+_MAX_VALUES = 100_000
+_MAX_DEPTH = 64
+
+
 class _Builder:
     def __init__(self, loader: yaml.SafeLoader, file: str):
         self.loader, self.file = loader, file
         self.out = Located(None)
         self.problems: list[Problem] = []
+        self.count = 0
 
     def build(self, node, path: tuple):
+        self.count += 1
+        where = dict(file=self.file, line=node.start_mark.line + 1,
+                     column=node.start_mark.column + 1, path=".".join(map(str, path)))
+        if self.count > _MAX_VALUES:
+            raise UserError.single(f"the file expands to more than {_MAX_VALUES} values "
+                                   "(aliases repeated too often)", **where)
+        if len(path) > _MAX_DEPTH:
+            raise UserError.single(f"nesting deeper than {_MAX_DEPTH} levels (or an alias "
+                                   "that contains itself) is not allowed", **where)
         self.out.values[path] = _pos(self.file, node.start_mark)
         if isinstance(node, yaml.MappingNode):
             return self._mapping(node, path)

@@ -79,3 +79,19 @@ def test_mutated_study_is_valid_or_a_located_error(text):
     assert code in (0, 2), out
     if code == 2:
         assert "error:" in out and "fuzzed.yaml" in out, out
+
+
+def _laughs(levels: int) -> str:
+    lines = ['x0: &x0 ["lol", "lol", "lol", "lol", "lol", "lol", "lol", "lol", "lol"]']
+    lines += [f"x{i}: &x{i} [" + ", ".join([f"*x{i - 1}"] * 9) + "]" for i in range(1, levels)]
+    return "\n".join(lines) + "\n"
+
+
+def test_alias_bombs_and_self_reference_are_refused_quickly(tmp_path):
+    # "billion laughs": 9 levels of 9 aliases expand to 9^9 values (common practice)
+    for name, text in (("laughs.yaml", _laughs(9) + yaml.safe_dump(BASE)),
+                       ("itself.yaml", "study: &a\n  name: x\n  more: *a\n")):
+        path = tmp_path / name
+        path.write_text(text)
+        code, out = run_cli(["check", str(path)])
+        assert code == 2 and "Traceback" not in out and f"{name}:" in out, out
