@@ -8,8 +8,7 @@ a call); at the end tags ``searcher.outcome``, ``searcher.reason``, ``searcher.p
 config as ``config.yaml``.
 
 Several workers (and several ``searcher run`` processes on one machine) write one sqlite file
-at once, so every call is retried with backoff when
-sqlite says the database is locked.  Any other tracking failure (a bad URI, a server that is
+at once, so every call is retried with backoff when sqlite says the database is locked.  Any other tracking failure (a bad URI, a server that is
 down) gives one warning and switches tracking off for that process: the Optuna store, which
 holds everything analysis needs, is never held up by the tracker.
 """

@@ -44,3 +44,8 @@ def test_password_appears_in_no_output(write_study, pg_url, tmp_path):
     assert any(p.name == "mlflow.db" for p in files) and any("dossier" in p.parts for p in files)
     leaked = [p for p in files if secret.encode() in p.read_bytes()]
     assert not leaked, leaked
+    from searcher.search import read_store
+    from searcher.spec import load_study
+
+    stored = read_store(load_study(path)).get_trials()  # what the database itself holds
+    assert len(stored) == 3 and secret not in repr([t.user_attrs for t in stored])
