@@ -190,7 +190,8 @@ def gate_samples(study, configs: list[dict]) -> list[dict]:
         target = next(f.name for f in fields.values() if f.role == "target")
         stats = _demo_stats(task) if task["source"] == "demo" else _file_stats(study, task)
         try:
-            gate = run_gate(cfg["model"], fields, target, seed=int(cfg["training"]["seed"]))
+            gate = run_gate(cfg["model"], fields, target, seed=int(cfg["training"]["seed"]),
+                            stats=stats)
             model = build_model(cfg["model"], fields, target, stats=stats)
         except UserError as exc:
             out.append({"params": None, "equivariant": None, "equivariance_error": None,

@@ -51,7 +51,8 @@ def train_config(study, config: dict, *, seed: int, epochs: int | None = None,
         cfg["training"]["epochs"] = int(epochs)
     dataset = study_dataset(study, cfg["task"])
     torch.manual_seed(int(seed))
-    model = build_model(cfg["model"], dataset.fields, dataset.target.name)
+    model = build_model(cfg["model"], dataset.fields, dataset.target.name,
+                        stats=dataset.stats["graphs"])
     result = fit(model, dataset, cfg, callback=callback, full_fidelity=full_fidelity)
     return model, result, dataset
 

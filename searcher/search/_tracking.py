@@ -24,6 +24,8 @@ from pathlib import Path
 
 import yaml
 
+from searcher.spec import flatten as flatten_config
+
 from ._urls import mask_url, public_config, tracking_uri
 
 __all__ = ["Tracker", "TrackingInfo", "prepare_tracking", "find_study_run", "flatten", "STUDY_ROLE",
@@ -47,16 +49,10 @@ class TrackingInfo:
     study: str
 
 
-def flatten(config: dict, prefix: str = "") -> dict[str, str]:
-    """``{"a": {"b": 1}}`` → ``{"a.b": "1"}`` (values as text, at most 500 characters)."""
-    out = {}
-    for key, value in config.items():
-        name = f"{prefix}{key}"
-        if isinstance(value, dict) and value:
-            out.update(flatten(value, name + "."))
-        else:
-            out[name] = str(value)[:_PARAM_CHARS]
-    return out
+def flatten(config: dict) -> dict[str, str]:
+    """``{"a": {"b": 1}}`` → ``{"a.b": "1"}``: MLflow params (values as text, at most 500
+    characters)."""
+    return {k: str(v)[:_PARAM_CHARS] for k, v in flatten_config(config).items()}
 
 
 def _quiet() -> None:

@@ -146,9 +146,10 @@ class TrialRunner:
         from searcher.train import fit
 
         target = self.dataset.target.name
-        gate = run_gate(config["model"], self.dataset.fields, target, seed=seed)
+        graphs = self.dataset.stats["graphs"]  # degree_mean scales `aggregate: degree`
+        gate = run_gate(config["model"], self.dataset.fields, target, seed=seed, stats=graphs)
         torch.manual_seed(seed)
-        model = build_model(config["model"], self.dataset.fields, target)
+        model = build_model(config["model"], self.dataset.fields, target, stats=graphs)
         cost = estimate_cost(model, self._cost_stats(config))
         trial.set_user_attr("gate", gate.to_dict())
         trial.set_user_attr("cost", cost.to_dict())
