@@ -7,9 +7,11 @@ and the value received.
 """
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, field
+from pathlib import Path
 
-__all__ = ["Problem", "UserError"]
+__all__ = ["Problem", "UserError", "ensure_folder"]
 
 
 @dataclass(frozen=True)
@@ -49,3 +51,33 @@ class UserError(Exception):
 
     def __str__(self) -> str:
         return "\n".join(p.render() for p in self.problems)
+
+
+def ensure_folder(path, key: str, *, file: str = "") -> Path:
+    """Create (when needed) a user-chosen output folder and make sure we can write in it.
+
+    Args:
+        path: the folder.
+        key: what chose it, named in the error: an option (``"--out"``) or a study key
+            (``"output.folder"``).
+        file: the study file holding ``key``, when it is a study key.
+
+    Returns:
+        ``path`` as a :class:`~pathlib.Path`.
+
+    Raises:
+        UserError: the path is an existing file, lies under one, or cannot be written.
+    """
+    folder = Path(path)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as err:  # FileExistsError, NotADirectoryError, PermissionError, ...
+        raise UserError.single(
+            f"must be a folder that can be written, but {folder} cannot be made "
+            f"({err.strerror or type(err).__name__})", file=str(file), path=key) from None
+    # mkdir succeeds on an existing folder we may not write into; find that out now rather
+    # than after minutes of work
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise UserError.single(f"must be a folder that can be written, but {folder} is "
+                               "read-only for this user", file=str(file), path=key)
+    return folder

@@ -24,11 +24,6 @@ def _seeded():
     yield
 
 
-@pytest.fixture
-def global_random_seed() -> int:
-    return 0
-
-
 @pytest.fixture(scope="session")
 def pg_server():
     """URL of a real PostgreSQL server (tests/pg_server.py: the CI one, or a private one)."""

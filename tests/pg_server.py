@@ -8,6 +8,7 @@ skipped suite would hide a broken storage layer.
 from __future__ import annotations
 
 import os
+import socket
 import subprocess
 import uuid
 from pathlib import Path
@@ -18,7 +19,7 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1]
 SCRIPT = ROOT / "scripts" / "pg-test-server"
 
-__all__ = ["Server", "shared_server", "fresh_database", "drop_database"]
+__all__ = ["Server", "free_port", "shared_server", "fresh_database", "drop_database"]
 
 
 class Server:
@@ -51,6 +52,13 @@ class Server:
         self._call("pg_test_stop")
 
 
+def free_port() -> int:
+    """A TCP port the OS reports free now (bind to port 0), so two servers never share one."""
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:
+        sock.bind(("127.0.0.1", 0))
+        return sock.getsockname()[1]
+
+
 def installed() -> bool:
     return any(Path("/usr/lib/postgresql").glob("*/bin/initdb"))
 
@@ -65,7 +73,7 @@ def shared_server():
         pytest.fail("these tests need PostgreSQL: run .ci/run, or install the postgresql "
                     "package, or `source scripts/pg-test-server; pg_test_start` to export "
                     "SEARCHER_TEST_PG_URL")
-    server = Server(54000 + os.getpid() % 1000, f"/tmp/searcher-pg-session-{os.getpid()}")
+    server = Server(free_port(), f"/tmp/searcher-pg-session-{os.getpid()}")
     yield server.start()
     server.stop()
 

@@ -12,6 +12,7 @@ from searcher.analysis._json import dumps
 from searcher.analysis._plots import plot_bars, plot_curves
 from searcher.analysis._records import count_outcomes, read_trials
 from searcher.analysis._traits import enrichment, trait_rules
+from searcher.errors import ensure_folder
 
 __all__ = ["MIN_TRIALS", "SAFETY", "analyze", "find_parent_run"]
 
@@ -141,7 +142,8 @@ def analyze(study_obj, optuna_study: optuna.Study, out_dir, mlflow_uri: str | No
         study_obj: the :class:`searcher.spec.Study` (only ``.name`` is read; None = the
             store's study name).
         optuna_study: the study's store.
-        out_dir: folder for ``analysis.json`` and the PNG charts (created).
+        out_dir: folder for ``analysis.json`` and the PNG charts (created first, so that a
+            folder that cannot be written fails before any work).
         mlflow_uri: tracking URI; when given and the study's parent run is found there, the
             JSON and PNGs are logged to it under ``analysis/``.
 
@@ -150,7 +152,7 @@ def analyze(study_obj, optuna_study: optuna.Study, out_dir, mlflow_uri: str | No
         (label, trials, size, final_median, best_median), ``good_group`` (or None),
         ``traits``, ``rules``, ``importance``, ``message``, ``files``, ``summary`` (text).
     """
-    out_dir = Path(out_dir)
+    out_dir = ensure_folder(out_dir, "out_dir")
     records = read_trials(optuna_study)
     curved = [r for r in records if r.has_curve]
     res = {"study": _study_name(study_obj, optuna_study), "trials": len(records),
@@ -179,9 +181,7 @@ def analyze(study_obj, optuna_study: optuna.Study, out_dir, mlflow_uri: str | No
             res["message"] = found.note
         share = in_group.mean() if found.good else 0.1
         res["importance"] = importances(records, share)
-        out_dir.mkdir(parents=True, exist_ok=True)
         res["files"] = [str(p) for p in _plots(res, curved, found, out_dir)]
-    out_dir.mkdir(parents=True, exist_ok=True)
     json_path = out_dir / "analysis.json"
     res["files"].insert(0, str(json_path))
     res["summary"] = _summary(res)

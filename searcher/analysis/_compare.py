@@ -19,7 +19,7 @@ from searcher.analysis._expected import (bootstrap_band, expected_best_curve, tr
 from searcher.analysis._plots import plot_bars, plot_lines
 from searcher.analysis._records import read_trials
 from searcher.analysis._space import check_comparable, space_diff
-from searcher.errors import UserError
+from searcher.errors import UserError, ensure_folder
 
 __all__ = ["compare"]
 
@@ -184,8 +184,7 @@ def compare(studies, target: float | None = None, force: bool = False, out_dir=N
                                    "diff": space_diff(studies[0][0], sb)})
     res["markdown"] = _markdown(res)
     if out_dir is not None:
-        out_dir = Path(out_dir)
-        out_dir.mkdir(parents=True, exist_ok=True)
+        out_dir = ensure_folder(out_dir, "out_dir")
         res["files"] = _plots(res, out_dir)
         (out_dir / "compare.md").write_text(res["markdown"])
         res["files"] += [str(out_dir / "compare.md"), str(out_dir / "compare.json")]

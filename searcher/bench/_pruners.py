@@ -163,7 +163,7 @@ def _good_group(curves: list[np.ndarray]) -> tuple[np.ndarray, str]:
     return mask, f"{groups.note}; the best decile stands in for the good group"
 
 
-def _oracle_ratio(curves: list[np.ndarray], good: np.ndarray, first: int) -> float:
+def _clairvoyant_ratio(curves: list[np.ndarray], good: np.ndarray, first: int) -> float:
     """Epoch ratio of a clairvoyant pruner: good curves run in full, every other full curve
     stops at ``first`` (the first epoch a pruner may act), diverged runs as they are."""
     budget = max(c.size for c in curves)
@@ -179,15 +179,13 @@ def _bench_one(curves, good, note, *, max_epochs: int, min_epochs: int, rank: in
     factories = replay_pruners(max_epochs, min_epochs=min_epochs, warmup=min_epochs - 1,
                                eta=eta, threshold=threshold, rank=rank)
     results = compare_pruners(curves, factories, good=good, seed=seed)
-    table = {r.pruner: {"epochs_ratio": r.epoch_ratio, "best_ratio": r.best_ratio,
-                        "wrongly_pruned_rate": r.wrongly_pruned_rate, "pruned": r.pruned,
-                        "good_size": r.good} for r in results}
+    table = {r.pruner: r.summary() for r in results}
     ours = table["curve_fit"]
     return {"pruners": table, "curves": len(curves), "epochs": max_epochs,
             "settings": {"min_epochs": min_epochs, "rank": rank, "threshold": threshold,
                          "eta": eta, "order_seed": seed},
             "crossing_pairs": crossing_pairs(curves, min_epochs),
-            "oracle_epochs_ratio": _oracle_ratio(curves, good, min_epochs),
+            "clairvoyant_epochs_ratio": _clairvoyant_ratio(curves, good, min_epochs),
             "goal_met": bool(ours["epochs_ratio"] <= 1 / 3 and ours["best_ratio"] <= 1.1
                              and ours["wrongly_pruned_rate"] <= 0.05),
             "notes": [note]}
@@ -213,7 +211,7 @@ def bench_pruners(quick: bool = False, *, study_path: str | Path = "studies/demo
 
     Returns:
         ``{name: {"pruners": {kind: {epochs_ratio, best_ratio, wrongly_pruned_rate, pruned,
-        good_size}}, "crossing_pairs", "oracle_epochs_ratio", "goal_met", "notes", ...},
+        good_size}}, "crossing_pairs", "clairvoyant_epochs_ratio", "goal_met", "notes", ...},
         "call_cost": {...}}``.
     """
     from searcher.search import crossing_curves, measure_call_cost
@@ -260,6 +258,8 @@ def bench_pruners(quick: bool = False, *, study_path: str | Path = "studies/demo
 
 def format_bench_pruners(result: dict) -> str:
     """Plain-text tables of :func:`bench_pruners`, one block per configuration."""
+    from searcher.search import format_replay_table
+
     lines = []
     for name, row in result.items():
         if name == "call_cost":
@@ -268,13 +268,8 @@ def format_bench_pruners(result: dict) -> str:
             continue
         lines.append(f"[{name}]")
         if "pruners" in row:
-            lines.append(f"{'pruner':<10} {'epoch ratio':>11} {'best ratio':>10} "
-                         f"{'pruned':>6} {'good cut':>9}")
-            for kind, r in row["pruners"].items():
-                cut = f"{round(r['wrongly_pruned_rate'] * r['good_size'])}/{r['good_size']}"
-                lines.append(f"{kind:<10} {r['epochs_ratio']:>11.3f} {r['best_ratio']:>10.3f} "
-                             f"{r['pruned']:>6d} {cut:>9}")
+            lines.append(format_replay_table(row["pruners"]))
             lines.append(f"crossing pairs: {row['crossing_pairs']}; clairvoyant epoch ratio: "
-                         f"{row['oracle_epochs_ratio']:.3f}; goal met: {row['goal_met']}")
+                         f"{row['clairvoyant_epochs_ratio']:.3f}; goal met: {row['goal_met']}")
         lines += [f"  note: {n}" for n in row["notes"]]
     return "\n".join(lines)

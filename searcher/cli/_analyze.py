@@ -4,9 +4,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-import optuna
-
-__all__ = ["register", "load_store"]
+__all__ = ["register", "output_folder"]
 
 EPILOG = """examples:
   searcher analyze studies/demo.yaml                 summary here, charts in runs/demo/analysis
@@ -15,37 +13,48 @@ EPILOG = """examples:
 """
 
 
-def load_store(study, storage: str | None = None) -> optuna.Study:
-    """Open an existing study store read-only (nothing is created when it is missing).
+def output_folder(out: str | None, study, *default: str) -> Path:
+    """The folder a reading command writes to, created and checked before any work.
 
     Args:
-        study: a loaded :class:`searcher.spec.Study`.
-        storage: URL overriding ``search.storage`` (``--storage``).
+        out: ``--out`` when given.
+        study: the study whose output folder holds the default.
+        default: the default's parts below ``<output>`` (``"analysis"``, ...).
 
     Raises:
-        UserError: no journal file yet, the storage cannot be opened, or it holds no study
-            of that name.
+        UserError: the folder cannot be made or written; it names ``--out`` or, for the
+            default, the study file's ``output.folder``.
     """
-    from searcher.search import read_store
+    from searcher.errors import ensure_folder
 
-    return read_store(study, storage)
+    if out:
+        return ensure_folder(out, "--out")
+    return ensure_folder(Path(study.output_dir).joinpath(*default), "output.folder",
+                         file=str(study.path))
 
 
 def _tracking(study) -> str | None:
-    uri = study.fixed()["tracking"]["uri"]
-    if uri:
-        return uri
-    db = Path(study.output_dir) / "mlflow.db"
-    return f"sqlite:///{db.resolve()}" if db.exists() else None
+    from searcher.search import tracking_uri
+
+    uri = tracking_uri(study.fixed()["tracking"]["uri"], study.output_dir)
+    # A sqlite file exists once a run has tracked to it; reading must not create an empty
+    # tracking store (nor look for the study's run in one).
+    if uri.startswith("sqlite:///") and not Path(uri[len("sqlite:///"):]).exists():
+        return None
+    return uri
 
 
 def _run(args) -> int:
     from searcher.analysis import analyze, dumps, prune_audit
+    from searcher.errors import UserError
+    from searcher.search import read_store
     from searcher.spec import load_study
 
+    if args.audit < 0:
+        raise UserError.single(f"must be at least 0, but got {args.audit}", path="--audit")
     study = load_study(args.study)
-    store = load_store(study, args.storage)
-    out = Path(args.out) if args.out else Path(study.output_dir) / "analysis"
+    store = read_store(study, args.storage)
+    out = output_folder(args.out, study, "analysis")
     res = analyze(study, store, out, mlflow_uri=_tracking(study))
     if args.audit:
         res["audit"] = prune_audit(study, store, res, args.audit)

@@ -69,6 +69,10 @@ def _get(cfg: dict, dotted: str):
 
 
 def _run(args) -> int:
+    for key in ("samples", "gate"):
+        if getattr(args, key) < 0:
+            raise UserError.single(f"must be at least 0, but got {getattr(args, key)}",
+                                   path=f"--{key}")
     try:
         study = load_study(args.study)
     except UserError as err:

@@ -2,9 +2,9 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
+import math
 
-from searcher.cli._analyze import load_store
+from searcher.cli._analyze import output_folder
 
 __all__ = ["register"]
 
@@ -17,11 +17,17 @@ EPILOG = """examples:
 
 def _run(args) -> int:
     from searcher.analysis import compare, dumps
+    from searcher.errors import UserError
+    from searcher.search import read_store
     from searcher.spec import load_study
 
+    if args.target is not None and not (math.isfinite(args.target) and args.target > 0):
+        # losses are positive: a NaN, infinite or non-positive target makes every hit moot
+        raise UserError.single(f"must be a finite positive loss, but got {args.target}",
+                               path="--target")
     studies = [load_study(path) for path in args.studies]
-    pairs = [(s, load_store(s)) for s in studies]
-    out = Path(args.out) if args.out else Path(studies[0].output_dir) / "analysis" / "compare"
+    pairs = [(s, read_store(s)) for s in studies]
+    out = output_folder(args.out, studies[0], "analysis", "compare")
     res = compare(pairs, target=args.target, force=args.force, out_dir=out)
     if args.json:
         print(dumps(res))

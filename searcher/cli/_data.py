@@ -95,10 +95,13 @@ def _inspect(args) -> int:
 
 def _export(args) -> int:
     from searcher.data import demo_samples, describe_fields, write_npz
-    from searcher.errors import UserError
+    from searcher.errors import UserError, ensure_folder
 
     if args.graphs < 1:
-        raise UserError.single(f"--graphs must be at least 1; got {args.graphs}", path="--graphs")
+        raise UserError.single(f"must be at least 1, but got {args.graphs}", path="--graphs")
+    if args.seed < 0:  # numpy's generators take no negative seed
+        raise UserError.single(f"must be at least 0, but got {args.seed}", path="--seed")
+    ensure_folder(args.out, "--out")
     task = _task(args)
     task["demo"].update(samples=args.graphs, seed=args.seed)
     paths = write_npz(args.out, demo_samples(task["demo"]), describe_fields(task))

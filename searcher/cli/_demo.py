@@ -46,6 +46,8 @@ def demo_study_text(out: Path, quick: bool) -> str:
 
 
 def _handle(args: argparse.Namespace) -> int:
+    from searcher.analysis import analyze
+    from searcher.report import make_dossier
     from searcher.search import open_store, run_study
     from searcher.spec import load_study
 
@@ -65,23 +67,11 @@ def _handle(args: argparse.Namespace) -> int:
     if summary.exit_code:
         print("stopped early; run the same command again to continue")
         return summary.exit_code
-    reports = []
-    try:
-        from searcher.analysis import analyze
-    except ImportError:
-        print("analysis: skipped (searcher.analysis is not available)")
-    else:
-        tracking = summary.tracking if summary.tracking != "off" else None
-        res = analyze(study, open_store(study), out / "analysis", mlflow_uri=tracking)
-        print(res.get("summary") or res.get("message") or "analysis done")
-        reports.append(f"analysis: {out / 'analysis'}")
-    try:
-        from searcher.report import make_dossier
-    except ImportError:
-        print("dossier: skipped (searcher.report is not available)")
-    else:
-        make_dossier(study, quick=args.quick, progress=print)
-        reports.append(f"dossier:  {out / 'dossier'}")
+    tracking = summary.tracking if summary.tracking != "off" else None
+    res = analyze(study, open_store(study), out / "analysis", mlflow_uri=tracking)
+    print(res.get("summary") or res.get("message") or "analysis done")
+    make_dossier(study, quick=args.quick, progress=print)
+    reports = [f"analysis: {out / 'analysis'}", f"dossier:  {out / 'dossier'}"]
     for line in where_lines(summary) + reports:
         print(line)
     print(f"demo finished in {time.perf_counter() - t0:.0f} s")

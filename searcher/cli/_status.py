@@ -22,7 +22,7 @@ def _human(status: dict) -> None:
     print(f"cpu time: {status['cpu_seconds'] / 3600:.2f} h")
     best = status["best"]
     if best:
-        from searcher.search._live import config_line
+        from searcher.search import config_line
 
         print(f"best:     {best['value']:.5g} (trial {best['number']})  "
               f"{config_line(best['config'])}")

@@ -20,11 +20,11 @@ from searcher.data._graphs import build_edges, graph_stats, to_data
 from searcher.data._kinds import (FIELD_KINDS, Field, irreps_dim, rotate_irreps, to_cartesian,
                                   to_irreps)
 from searcher.data._normaliser import Normaliser
-from searcher.data._splits import STRESS_KINDS, split_samples, stress_sets, transform_sample
+from searcher.data._splits import split_samples, stress_sets, transform_sample
 
 __all__ = [
     "DEMO_FIELDS", "Dataset", "FAMILIES", "FIELD_KINDS", "Field", "GENERATOR_VERSION",
-    "Normaliser", "Placement", "STRESS_KINDS", "SUFFIXES", "Sample", "build_dataset",
+    "Normaliser", "Placement", "SUFFIXES", "Sample", "build_dataset",
     "build_edges", "data_files", "data_hash", "declared_fields", "demo_sample", "demo_samples",
     "describe_fields", "draw_params", "evaluate_flow", "graph_stats", "irreps_dim",
     "linear_anisotropy", "make_realizable", "place_flow", "pope_terms", "read_samples",

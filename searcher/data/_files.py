@@ -30,7 +30,7 @@ import numpy as np
 from searcher.data._demo import Sample
 from searcher.data._graphs import RESERVED_NAMES
 from searcher.data._kinds import FIELD_KINDS, Field, cartesian_matrix, to_cartesian, to_irreps
-from searcher.errors import UserError
+from searcher.errors import UserError, ensure_folder
 
 __all__ = ["SUFFIXES", "data_files", "declared_fields", "read_samples", "write_npz"]
 
@@ -193,9 +193,17 @@ def read_samples(task_cfg: dict, fields: dict[str, Field]) -> list[Sample]:
 
 
 def write_npz(out_dir, samples: list[Sample], fields: dict[str, Field]) -> list[Path]:
-    """Write samples as NPZ files of the schema above (Cartesian values, world positions)."""
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    """Write samples as NPZ files of the schema above (Cartesian values, world positions).
+
+    Args:
+        out_dir: the folder (created).
+        samples: what to write.
+        fields: the fields' kinds, roles and levels (the header).
+
+    Raises:
+        UserError: ``out_dir`` cannot be made or written.
+    """
+    out = ensure_folder(out_dir, "out_dir")
     header = json.dumps({f.name: {"kind": f.kind, "role": f.role, "level": f.level}
                          for f in fields.values()})
     paths = []

@@ -1,6 +1,6 @@
 """Train/val/test splits by sample, and the symmetry stress sets built from test samples.
 
-Stress sets (``task.split.stress``):
+Stress sets (``task.split.stress``; the accepted names are :data:`searcher.spec.STRESS_SETS`):
 
 * ``rotated`` — each test sample re-oriented by a uniform random rotation ``R``: positions
   ``x ↦ R x`` and every field by its irreps ``D(R)``;
@@ -19,9 +19,7 @@ from scipy.spatial.transform import Rotation
 from searcher.data._demo import Sample, demo_sample
 from searcher.data._kinds import Field, rotate_irreps
 
-__all__ = ["split_samples", "transform_sample", "stress_sets", "STRESS_KINDS"]
-
-STRESS_KINDS = ("rotated", "reflected", "translated", "unseen_family", "denser", "sparser")
+__all__ = ["split_samples", "transform_sample", "stress_sets"]
 
 
 def split_samples(indices: list[int], fractions, seed: int) -> dict[str, list[int]]:

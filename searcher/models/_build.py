@@ -29,9 +29,9 @@ def build_model(model_cfg: dict, fields: dict, target: str, *,
     Raises:
         UserError: unknown names, fields the task lacks, or unreachable target irreps.
 
-    Example:
-        >>> model = build_model(cfg["model"], fields, "anisotropy")  # doctest: +SKIP
-        >>> model(graph).shape                                        # doctest: +SKIP
-        torch.Size([12, 5])
+    Example::
+
+        model = build_model(cfg["model"], fields, "anisotropy")
+        model(graph).shape   # torch.Size([12, 5])
     """
     return FAMILIES.get(model_cfg["family"])(model_cfg, fields, target, stats)

@@ -137,10 +137,10 @@ def estimate_cost(model: torch.nn.Module, stats: dict, *, batch_size: int = 8,
         batch_size: graphs in the probe batch that is timed.
         repeats: timed steps after one warm-up (the median is reported).
 
-    Example:
-        >>> estimate_cost(model, {"graphs": 28, "nodes_mean": 32, "edges_mean": 200})
-        ... # doctest: +SKIP
-        Cost(params=..., madds_per_edge=..., madds_per_node=..., ...)
+    Example::
+
+        estimate_cost(model, {"graphs": 28, "nodes_mean": 32, "edges_mean": 200})
+        # Cost(params=..., madds_per_edge=..., madds_per_node=..., ...)
     """
     per_edge, per_node = count_madds(model)
     nodes = float(stats.get("nodes_mean", 0))

@@ -182,9 +182,9 @@ def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
     call; later calls with the same model section, fields, target, tolerance and stats (any
     seed) return a copy of it.
 
-    Example:
-        >>> run_gate(cfg["model"], fields, "anisotropy").passed  # doctest: +SKIP
-        True
+    Example::
+
+        run_gate(cfg["model"], fields, "anisotropy").passed   # True
     """
     key = _verdict_key(model_cfg, fields, target, tol, stats)
     if key not in _VERDICTS:

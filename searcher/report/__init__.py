@@ -1,9 +1,10 @@
 """The evidence dossier: finalist re-training, statistics, plots, writers and model export.
 
-Example:
-    >>> from searcher.spec import load_study
-    >>> content = make_dossier(load_study("studies/demo.yaml"), quick=True)  # doctest: +SKIP
-    >>> content["pick"]["decision"]                                          # doctest: +SKIP
+Example::
+
+    from searcher.spec import load_study
+    content = make_dossier(load_study("studies/demo.yaml"), quick=True)
+    content["pick"]["decision"]
 """
 from searcher.report._cautions import CAUTIONS, cautions_for
 from searcher.report._content import FORMAT, assemble, summarise_finalist

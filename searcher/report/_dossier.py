@@ -68,9 +68,12 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
         The dossier content (what ``dossier.json`` holds).
 
     Raises:
-        UserError: no measured trial in the store, or bad settings.
+        UserError: bad settings, no study (or no trial) in the store, no measured trial, or
+            a dossier folder that cannot be written.  Nothing is created before these checks:
+            the store is only read, and the folder is made once the study is known to exist.
     """
     from searcher.analysis import analyze, read_trials
+    from searcher.errors import UserError, ensure_folder
     from searcher.report._content import assemble
     from searcher.report._export import export_choice
     from searcher.report._finalists import choose_finalists
@@ -78,16 +81,20 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
     from searcher.report._rerun import retrain
     from searcher.report._tracking import DossierTracker
     from searcher.report._writers import FILES, plot_files, write_dossier
-    from searcher.search import open_store, public_config
+    from searcher.search import public_config, read_store, storage_label
     from searcher.train import pick_device
 
     started = now_utc()
     settings = dossier_settings(study, finalists=finalists, seeds=seeds, epochs=epochs,
                                 quick=quick)
-    folder = Path(out) if out else Path(study.output_dir) / "dossier"
-    folder.mkdir(parents=True, exist_ok=True)
+    store = read_store(study, storage)
+    if not store.trials:
+        raise UserError.single(f"the study {study.name!r} must have trials for a dossier, but "
+                               f"{storage_label(study, storage)} holds none (run the study "
+                               "first)", file=str(study.path))
+    folder = ensure_folder(out, "--out") if out else ensure_folder(
+        Path(study.output_dir) / "dossier", "output.folder", file=str(study.path))
     fixed = study.fixed()
-    store = open_store(study, storage)
     with tempfile.TemporaryDirectory() as scratch:  # analysis' own files are not ours to keep
         analysis = analyze(study, store, scratch)
     candidates, notes = choose_finalists(study, read_trials(store), analysis,

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import copy
 import json
+import pickle
 from pathlib import Path
 
 import yaml
@@ -73,12 +74,16 @@ def export_choice(folder: Path, config: dict, state: dict, *, name: str, summary
 
     Returns:
         ``(yaml_path, weights_path)``.
+
+    Raises:
+        UserError: ``folder`` cannot be made or written.
     """
     import torch
 
+    from searcher.errors import ensure_folder
     from searcher.spec import load_study
 
-    folder.mkdir(parents=True, exist_ok=True)
+    folder = ensure_folder(folder, "folder")
     yaml_path, weights = folder / yaml_name, folder / weights_name
     doc = choice_study(config, name=name, summary=summary)
     yaml_path.write_text(HEADER.format(name=config["study"]["name"], weights=weights.name)
@@ -100,6 +105,10 @@ def load_model(path):
     Returns:
         The model in eval mode, with ``.config`` (resolved config) and ``.normaliser``
         (:class:`searcher.data.Normaliser`, or None without the side file) attached.
+
+    Raises:
+        UserError: a missing file, an invalid .yaml, weights that are corrupt or belong to
+            another model, or a normaliser file that is not valid JSON of the right shape.
 
     Example:
         >>> model = searcher.load_model("runs/demo/dossier/choice.pt")  # doctest: +SKIP
@@ -125,10 +134,27 @@ def load_model(path):
     fields = describe_fields(config["task"])
     target = next(f.name for f in fields.values() if f.role == "target")
     model = build_model(config["model"], fields, target)
-    model.load_state_dict(torch.load(weights, map_location="cpu", weights_only=True))
+    try:
+        model.load_state_dict(torch.load(weights, map_location="cpu", weights_only=True))
+    except (RuntimeError, TypeError, EOFError, pickle.UnpicklingError, OSError) as err:
+        # truncated or foreign file, or weights of another model than the .yaml describes
+        raise _unreadable(weights, f"weights that fit the model of {yaml_path.name}",
+                          err) from None
     model.eval()
     model.config = config
     side = normaliser_path(weights)
-    model.normaliser = (Normaliser.from_dict(json.loads(side.read_text())) if side.is_file()
-                        else None)
+    try:
+        model.normaliser = (Normaliser.from_dict(json.loads(side.read_text()))
+                            if side.is_file() else None)
+    except (ValueError, TypeError, AttributeError, OSError) as err:  # ValueError: bad JSON
+        raise _unreadable(side, "a normaliser written by the dossier (field -> blocks)",
+                          err) from None
     return model
+
+
+def _unreadable(path: Path, rule: str, err: Exception):
+    from searcher.errors import UserError
+
+    first = (str(err).strip().splitlines() or [""])[0][:200]
+    return UserError.single(f"cannot load a model: {path.name} must hold {rule}, but reading "
+                            f"it failed ({type(err).__name__}: {first})", file=str(path))

@@ -13,6 +13,7 @@ from pathlib import Path
 
 import jinja2
 
+from searcher.errors import ensure_folder
 from searcher.report._plots import PLOTS, render_plots
 from searcher.report._sections import sections
 
@@ -149,9 +150,13 @@ def write_dossier(content: dict, folder: Path) -> None:
     """Draw the figures and write HTML, Markdown, JSON and PNG files into ``folder``.
 
     ``content["files"]`` must already name them (see :data:`FILES`, :func:`plot_files`).
+
+    Raises:
+        UserError: ``folder`` or its ``plots`` folder cannot be made or written.
     """
+    folder = Path(folder)
+    ensure_folder(folder / "plots", "folder")
     plots = render_plots(content)
-    (folder / "plots").mkdir(parents=True, exist_ok=True)
     linked = {}
     for name, (caption, png) in plots.items():
         rel = f"plots/{name}.png"

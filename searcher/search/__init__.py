@@ -7,6 +7,7 @@ Public API (DEVELOPERS.md, "Contracts/search"): :func:`open_store`, :func:`run_s
 """
 from ._curve_fit import CurveFitPruner, prob_beats
 from ._keep import checkpoint_path, keep_best
+from ._live import config_line
 from ._outcomes import OUTCOMES, VALUED, best_record, finished, outcome_of, tally
 from ._recover import process_alive, recover
 from ._replay import (ReplayResult, compare_pruners, crossing_curves, format_replay_table,
@@ -19,7 +20,7 @@ from ._status import study_status
 from ._store import make_storage, open_store, read_store, storage_down, storage_label
 from ._tracking import (Tracker, TrackingInfo, find_study_run, flatten, prepare_tracking)
 from ._trial import TrialRunner, trial_seed
-from ._urls import mask_url, public_config
+from ._urls import mask_url, public_config, tracking_uri
 
 __all__ = [
     "CurveFitPruner", "prob_beats", "checkpoint_path", "keep_best", "OUTCOMES", "VALUED",
@@ -29,7 +30,7 @@ __all__ = [
     "RunSummary", "deadline_of", "parse_until", "run_study", "study_status", "make_storage",
     "open_store", "read_store", "storage_down", "storage_label", "Tracker", "TrackingInfo",
     "find_study_run", "flatten",
-    "prepare_tracking", "TrialRunner", "trial_seed", "mask_url", "public_config",
+    "prepare_tracking", "TrialRunner", "trial_seed", "mask_url", "public_config", "tracking_uri",
     "ReplayResult", "compare_pruners", "crossing_curves", "format_replay_table", "good_mask",
-    "measure_call_cost", "replay", "replay_pruners",
+    "measure_call_cost", "replay", "replay_pruners", "config_line",
 ]

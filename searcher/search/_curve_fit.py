@@ -52,14 +52,14 @@ the k-th best (``rank``), not against "better than the rest".
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
 import optuna
 from optuna.trial import TrialState
 from scipy.optimize import least_squares
 from scipy.special import stdtr
+
+from searcher.search._curve_shapes import SHAPES, Shape
 
 __all__ = ["CurveFitPruner", "prob_beats", "crossing_prior"]
 
@@ -84,57 +84,6 @@ _STARTS = 1          # refinements per shape: the grid already is the multi-star
 _MAX_NFEV = 30       # small: the grid start is already close
 
 
-@dataclass(frozen=True)
-class _Shape:
-    """One curve family: ``phi(x, u, theta) -> (phi [n], dphi/dtheta [n, m])``."""
-
-    name: str
-    grid: np.ndarray                     # [G, m] starting values of theta
-    lower: tuple[float, ...]
-    upper: tuple[float, ...]
-    phi: Callable[[np.ndarray, np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray]]
-
-
-def _pow3(x, u, th):
-    p = x ** -th[0]
-    return p, (-np.log(x) * p)[:, None]
-
-
-def _exp3(x, u, th):
-    p = np.exp(-th[0] * u)
-    return p, (-u * p)[:, None]
-
-
-def _mmf(x, u, th):
-    h, d = th
-    r = u / h
-    z = r ** d
-    q = 1.0 / (1.0 + z)
-    return q, np.stack([q * q * z * d / h, -q * q * z * np.log(r)], axis=1)
-
-
-def _weibull(x, u, th):
-    h, d = th
-    r = u / h
-    z = r ** d
-    p = np.exp(-z)
-    return p, np.stack([p * z * d / h, -p * z * np.log(r)], axis=1)
-
-
-def _grid2(hs, ds):
-    return np.array([(h, d) for h in hs for d in ds], dtype=float)
-
-
-_HALF = np.geomspace(0.02, 2.0, 9)       # h: half-drop point as a fraction of the budget
-_STEEP = np.array([0.7, 1.5, 3.0, 6.0])  # delta: steepness
-_SHAPES = (
-    _Shape("pow3", np.geomspace(0.05, 3.0, 10)[:, None], (0.01,), (6.0,), _pow3),
-    _Shape("exp3", np.geomspace(0.3, 60.0, 10)[:, None], (0.05,), (200.0,), _exp3),
-    _Shape("mmf", _grid2(_HALF, _STEEP), (0.005, 0.3), (5.0, 12.0), _mmf),
-    _Shape("weibull", _grid2(_HALF, _STEEP), (0.005, 0.3), (5.0, 12.0), _weibull),
-)
-
-
 def _project(y: np.ndarray, phis: np.ndarray, c_lo: float) -> tuple[np.ndarray, np.ndarray,
                                                                       np.ndarray]:
     """Closed-form c, a (a >= 0, c >= c_lo) for every grid row of ``phis`` [G, n]."""
@@ -148,7 +97,7 @@ def _project(y: np.ndarray, phis: np.ndarray, c_lo: float) -> tuple[np.ndarray, 
     return c, a, rss
 
 
-def _fit_shape(shape: _Shape, x, u, y, x_end, u_end, c_lo, c_hi, scale):
+def _fit_shape(shape: Shape, x, u, y, x_end, u_end, c_lo, c_hi, scale):
     """Fit one shape; returns (mean, scale at X, degrees of freedom, BIC) or None."""
     n, m = y.size, shape.grid.shape[1]
     k = m + 2
@@ -316,7 +265,7 @@ def prob_beats(curve, max_epochs: int, target: float) -> float:
     # The noise scale sets where soft-L1 switches from squared to absolute residuals.
     scale = _noise_scale(y)
     c_lo, c_hi = float(y.min()) - _MAX_DROP, float(y.max()) + 1.0
-    fits = [f for s in _SHAPES
+    fits = [f for s in SHAPES
             if (f := _fit_shape(s, x, u, y, x_end, u_end, c_lo, c_hi, scale)) is not None]
     means, spreads, dofs, bics = (np.array(v) for v in zip(*fits))
     w = np.exp(-(bics - bics.min()) / 2.0)

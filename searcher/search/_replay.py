@@ -59,6 +59,13 @@ class ReplayResult:
     pruned_at: tuple[int | None, ...]
     study: optuna.Study = field(repr=False, compare=False)
 
+    def summary(self) -> dict:
+        """The figures a benchmark keeps: ``epochs_ratio``, ``best_ratio``,
+        ``wrongly_pruned_rate``, ``pruned`` and ``good_size``."""
+        return {"epochs_ratio": self.epoch_ratio, "best_ratio": self.best_ratio,
+                "wrongly_pruned_rate": self.wrongly_pruned_rate, "pruned": self.pruned,
+                "good_size": self.good}
+
     def to_dict(self) -> dict:
         d = asdict(self)
         d.pop("study")
@@ -212,14 +219,19 @@ def compare_pruners(curves: Sequence[np.ndarray],
             for name, make in factories.items()]
 
 
-def format_replay_table(results: Sequence[ReplayResult]) -> str:
-    """Plain-text table of replay results, one row per pruner."""
-    rows = [f"{'pruner':<10} {'epochs':>7} {'epoch ratio':>11} {'best ratio':>10} "
-            f"{'pruned':>6} {'good cut':>9} {'good cut rate':>13}"]
-    rows += [f"{r.pruner:<10} {r.epochs:>7d} {r.epoch_ratio:>11.3f} {r.best_ratio:>10.3f} "
-             f"{r.pruned:>6d} {f'{r.wrongly_pruned}/{r.good}':>9} {r.wrongly_pruned_rate:>13.3f}"
-             for r in results]
-    return "\n".join(rows)
+def format_replay_table(rows: Mapping[str, Mapping]) -> str:
+    """Plain-text table of replay results, one row per pruner.
+
+    Args:
+        rows: pruner label → :meth:`ReplayResult.summary` (also the benchmark record's form).
+    """
+    lines = [f"{'pruner':<10} {'epoch ratio':>11} {'best ratio':>10} {'pruned':>6} "
+             f"{'good cut':>9}"]
+    for label, r in rows.items():
+        cut = f"{round(r['wrongly_pruned_rate'] * r['good_size'])}/{r['good_size']}"
+        lines.append(f"{label:<10} {r['epochs_ratio']:>11.3f} {r['best_ratio']:>10.3f} "
+                     f"{r['pruned']:>6d} {cut:>9}")
+    return "\n".join(lines)
 
 
 def measure_call_cost(points: int = 30, calls: int = 40, seed: int = 0) -> dict:

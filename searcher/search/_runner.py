@@ -17,6 +17,7 @@ the same way but returns 0.  Running the same command again continues the study.
 from __future__ import annotations
 
 import datetime as dt
+import math
 import multiprocessing as mp
 import signal
 import threading
@@ -25,7 +26,7 @@ import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from searcher.errors import UserError
+from searcher.errors import UserError, ensure_folder
 
 __all__ = ["run_study", "RunSummary", "parse_until", "deadline_of"]
 
@@ -125,6 +126,9 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
     from ._worker import WorkerArgs, worker_loop, worker_process
 
     start = time.time()
+    # the folder is named by --out, else by the study's output.folder
+    where = {"key": "--out"} if out is not None else {"key": "output.folder",
+                                                       "file": str(study.path)}
     if out is not None:
         study.output_dir = Path(out)
     output_dir = Path(study.output_dir).resolve()
@@ -134,10 +138,18 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
     workers = int(workers if workers is not None else search["workers"])
     if workers < 1:
         raise UserError.single(f"must be at least 1, but got {workers}", path="--workers")
+    # the study file's budget is checked by the spec; the overrides are checked here, since
+    # a negative count would end the run at once and a negative or NaN time would lift it
+    if trials is not None and int(trials) < 0:
+        raise UserError.single(f"must be at least 0 (0 = no limit), but got {trials}",
+                               path="--trials")
+    if hours is not None and not (math.isfinite(float(hours)) and float(hours) >= 0):
+        raise UserError.single(f"must be a finite number of hours >= 0 (0 = no limit), but "
+                               f"got {hours}", path="--hours")
     budget = int(trials if trials is not None else search["budget"]["trials"])
     deadline = deadline_of(hours if hours is not None else search["budget"]["hours"],
                            until if until is not None else search["budget"]["until"], start)
-    output_dir.mkdir(parents=True, exist_ok=True)
+    ensure_folder(output_dir, **where)
     build_dataset(cfg["task"], cache_dir=output_dir / "cache")
     opt = open_store(study, storage)
     notes = []

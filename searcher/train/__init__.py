@@ -9,12 +9,5 @@ from ._schedule import OPTIMISERS, SCHEDULES, Schedule, make_optimiser
 
 __all__ = ["fit", "FitResult", "evaluate", "target_blocks", "BlockErrors", "ZERO_BLOCK",
            "collate", "TrainBatches", "fidelity_graphs", "save_weights", "load_weights",
-           "make_optimiser", "Schedule", "OPTIMISERS", "SCHEDULES", "pick_device",
-           "seed_everything"]
+           "make_optimiser", "Schedule", "OPTIMISERS", "SCHEDULES", "pick_device"]
 
-
-def seed_everything(seed: int) -> None:
-    """Seed torch's global generator (model initialisation) before ``build_model``."""
-    import torch
-
-    torch.manual_seed(int(seed))

@@ -8,22 +8,12 @@ import yaml
 
 from searcher.bench._pruners import (bench_pruners, crossing_pairs, format_bench_pruners,
                                      truth_curves)
-
-TINY = {
-    "study": {"name": "tiny-bench"},
-    "task": {"source": "demo", "demo": {"samples": 8, "probes": 10, "seed": 3},
-             "graph": {"rule": "neighbours", "neighbours": 4},
-             "split": {"fractions": [0.5, 0.25, 0.25], "hold_out": [], "stress": []}},
-    "model": {"family": "gated", "hidden": {"lmax": 1, "multiplicity": 2}, "layers": 1,
-              "radial": {"count": 4}, "width": 8, "node_inputs": ["velocity"]},
-    "training": {"epochs": 4, "batch_size": 2,
-                 "learning_rate": {"real": [0.0003, 0.03], "log": True}},
-    "search": {"pruner": {"kind": "curve_fit", "min_epochs": 1, "max_epochs": 4, "eta": 2}},
-}
+from searcher.testing import tiny_study_doc
 
 
 def _tiny(tmp_path):
-    doc = {**TINY, "output": {"folder": str(tmp_path / "out")}}
+    doc = tiny_study_doc(study={"name": "tiny-bench"}, search={"pruner": {"kind": "curve_fit"}},
+                         output={"folder": str(tmp_path / "out")})
     path = tmp_path / "tiny.yaml"
     path.write_text(yaml.safe_dump(doc, sort_keys=False))
     return path
@@ -48,7 +38,7 @@ def test_bench_pruners_tiny_ground_truth(tmp_path):
             assert 0.0 < r["epochs_ratio"] <= 1.0 and 0.0 <= r["wrongly_pruned_rate"] <= 1.0
             assert r["best_ratio"] >= 1.0 or math.isnan(r["best_ratio"])
             assert r["good_size"] >= 1
-        assert row["crossing_pairs"] >= 0 and 0.0 < row["oracle_epochs_ratio"] <= 1.0
+        assert row["crossing_pairs"] >= 0 and 0.0 < row["clairvoyant_epochs_ratio"] <= 1.0
         assert isinstance(row["goal_met"], bool)
     assert out["crossing"]["pruners"]["none"]["good_size"] == 2
     text = format_bench_pruners(out)

@@ -9,7 +9,7 @@ import yaml
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from tests.search.conftest import BASE
+from searcher.testing import tiny_study_doc
 
 from ._harness import run_cli
 
@@ -27,6 +27,7 @@ def _paths(doc, prefix=()):
             yield from _paths(value, prefix + (key,))
 
 
+BASE = tiny_study_doc()
 PATHS = sorted(_paths(BASE))
 
 

@@ -86,6 +86,9 @@ def test_candidates_pass_gate_in_float64(family, overrides, fields, target):
 def test_baselines_are_measured_not_rejected(family):
     result = run_gate(model_config({**TINY, "family": family}), DEMO, "anisotropy")
     assert result.passed and not result.equivariant
+    # Why 1e-2: a baseline treats Cartesian components as plain features, so a rotation mixes
+    # them and its error is of the order of its (unit-normalised) output; 1e-2 is far below
+    # that and far above float64 rounding (~1e-15) and the gate's 1e-9 tolerance.
     assert result.equivariance_error > 1e-2 and result.second_check_error > 1e-2
     assert result.to_dict()["reason"].startswith("baseline")
 
@@ -111,6 +114,9 @@ def test_broken_block_is_caught():
                                     "anisotropy"))
     result = gate_model(model, DEMO)
     assert not result.passed and result.equivariant
+    # Why 1e-3: the 0.1 bias on the l > 0 components does not rotate with the output, so the
+    # error |D(R) b - b| is of order 0.1 for a generic rotation (derived from _VectorBias);
+    # 1e-3 leaves two decades of margin and is still six above the 1e-9 tolerance.
     assert result.equivariance_error > 1e-3 and "exceeds" in result.reason
     with pytest.raises(AssertionError):
         assert_gate(model, DEMO)

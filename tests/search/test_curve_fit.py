@@ -7,8 +7,9 @@ import numpy as np
 import optuna
 import pytest
 
-from searcher.search._curve_fit import (_SHAPES, _TRUST_FRACTION, CurveFitPruner, _fit_shape,
+from searcher.search._curve_fit import (_TRUST_FRACTION, CurveFitPruner, _fit_shape,
                                         crossing_prior, prob_beats)
+from searcher.search._curve_shapes import SHAPES
 
 # Curve families of Domhan, Springenberg & Hutter, IJCAI 2015 (Table 1), written for a falling
 # log10 loss: pow3 y = c + a x^-alpha, exp3 y = c + a exp(-b x).
@@ -21,7 +22,7 @@ EXP3_END = -4.0 + 3.0 * math.exp(-0.1 * X)
 
 
 def _mean_at_end(name: str, y: np.ndarray) -> float:
-    shape = next(s for s in _SHAPES if s.name == name)
+    shape = next(s for s in SHAPES if s.name == name)
     end = np.array([float(X)])
     mean, _, _, _ = _fit_shape(shape, x, x / X, y, end, end / X, y.min() - 6.0, y.max() + 1.0,
                                0.01)

@@ -6,7 +6,6 @@ process with worker index 0); the database is a real server (tests/pg_server.py)
 from __future__ import annotations
 
 import signal
-import time
 
 import pytest
 from mlflow import MlflowClient
@@ -15,7 +14,7 @@ from optuna.trial import TrialState
 from searcher.search import finished, outcome_of, read_store, sampler_seed
 from searcher.errors import UserError
 from searcher.spec import load_study
-from tests.pg_server import Server
+from tests.pg_server import Server, free_port
 
 from ._procs import running_trial, start, wait_for
 
@@ -108,7 +107,7 @@ def test_killed_worker_trial_goes_stale_and_is_retried(write_study, pg_url):
 
 def test_database_lost_mid_sweep_exits_2_and_keeps_finished_trials(write_study, tmp_path):
     # its own server: stopping the shared one would break the other tests
-    server = Server(54000 + int(time.time()) % 900, f"/tmp/searcher-pg-lost-{tmp_path.name}")
+    server = Server(free_port(), f"/tmp/searcher-pg-lost-{tmp_path.name}")
     url = server.start()
     try:
         path = write_study({**FAST, "search": {**FAST["search"],

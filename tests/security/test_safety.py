@@ -11,9 +11,10 @@ import pytest
 import yaml
 
 from searcher.cli import main
-from tests.search.conftest import BASE
+from searcher.testing import tiny_study_doc
 
 PACKAGE = Path(__file__).resolve().parents[2] / "searcher"
+BASE = tiny_study_doc()
 
 
 def test_every_torch_load_uses_weights_only():
