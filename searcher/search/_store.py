@@ -18,6 +18,7 @@ import logging
 import random
 import time
 import warnings
+from pathlib import Path
 
 import optuna
 
@@ -147,6 +148,13 @@ def make_storage(study, storage: str | None = None) -> optuna.storages.BaseStora
     return _rdb(study, url, cli, read_only=False)
 
 
+def _sqlite_file(url: str) -> Path | None:
+    """The database file of a ``sqlite:///path`` URL (None for other URLs or in-memory)."""
+    if not url.startswith("sqlite:///") or url in ("sqlite://", "sqlite:///:memory:"):
+        return None
+    return Path(url[len("sqlite:///"):])
+
+
 def read_store(study, storage: str | None = None, *, required: bool = True):
     """The study's existing Optuna study, opened without creating anything.
 
@@ -175,6 +183,12 @@ def read_store(study, storage: str | None = None, *, required: bool = True):
         store = optuna.storages.JournalStorage(
             optuna.storages.journal.JournalFileBackend(str(path)))
     else:
+        sqlite_file = _sqlite_file(url)
+        if sqlite_file is not None and not sqlite_file.exists():  # connecting would create it
+            if not required:
+                return None
+            raise UserError.single(f"the sqlite storage must exist to be read, but "
+                                   f"{sqlite_file} does not (a mistyped --storage?)", **where)
         store = _rdb(study, url, cli, read_only=True)
     try:
         names = optuna.get_all_study_names(store)

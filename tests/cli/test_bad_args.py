@@ -3,6 +3,7 @@ nothing already stored is lost (DEVELOPERS.md, "Bad input")."""
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import optuna
 import pytest
@@ -197,3 +198,15 @@ def test_analyze_tracking_follows_the_environment(tmp_path, monkeypatch):
     assert _tracking(study) == elsewhere
     monkeypatch.setenv("MLFLOW_TRACKING_URI", "http://tracking.lab:5000")
     assert _tracking(study) == "http://tracking.lab:5000"
+
+
+def test_reading_a_mistyped_sqlite_storage_creates_nothing(tmp_path, capsys):
+    # Reading must never create a store: connecting SQLAlchemy to a missing sqlite file would
+    # create an empty database (common practice: read paths are side-effect free).
+    study = Path(__file__).resolve().parents[2] / "studies" / "demo-narrow.yaml"
+    missing = tmp_path / "typo.db"
+    assert main(["status", str(study), "--storage", f"sqlite:///{missing}"]) == 0
+    assert "0 trials" in capsys.readouterr().out and not missing.exists()
+    assert main(["analyze", str(study), "--storage", f"sqlite:///{missing}"]) == 2
+    err = capsys.readouterr().err
+    assert "Traceback" not in err and str(missing) in err and not missing.exists()
