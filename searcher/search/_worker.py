@@ -148,6 +148,7 @@ def worker_loop(args: WorkerArgs, lock, should_stop: Callable[[], bool]) -> int:
     from ._registry import sampler_seed
     from ._store import (GRACE_FACTOR, heartbeat_of, open_store, shared_store,
                          storage_down)
+    from ._fleet_lock import fleet_lock
     from ._tracking import Tracker
     from ._trial import TrialFailed, TrialRunner
 
@@ -163,11 +164,14 @@ def worker_loop(args: WorkerArgs, lock, should_stop: Callable[[], bool]) -> int:
     beat = heartbeat_of(study)
     outage = _Outage(study, args.storage, GRACE_FACTOR * beat)
     held = [False]
+    fleet = fleet_lock(opt)  # across hosts on PostgreSQL; None elsewhere
 
     def release() -> None:
         if held[0]:
             held[0] = False
             lock.release()
+        if fleet is not None:
+            fleet.release()
 
     def stop() -> bool:
         return should_stop() or (args.deadline > 0 and time.time() >= args.deadline)
@@ -181,6 +185,8 @@ def worker_loop(args: WorkerArgs, lock, should_stop: Callable[[], bool]) -> int:
         # others go on without it (at worst one trial beyond the budget)
         held[0] = lock.acquire(timeout=_LOCK_SECONDS)
         try:
+            if fleet is not None:
+                fleet.acquire()
             step = _next_step(opt, args.trials)
             if step == "run":
                 opt.optimize(runner, n_trials=1, catch=(TrialFailed,), gc_after_trial=False)
