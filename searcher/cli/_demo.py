@@ -12,14 +12,16 @@ from pathlib import Path
 
 import yaml
 
+from searcher.errors import UserError, ensure_folder
+
 __all__ = ["register", "demo_study_text", "QUICK"]
 
 # --quick: fewer, shorter trials on fewer, smaller graphs (about a third of the full demo).
 QUICK = {"study": {"name": "demo-quick"},
-         "task": {"demo": {"samples": 24, "probes": 24}},
-         "training": {"epochs": 9},
-         "search": {"budget": {"trials": 10},
-                    "pruner": {"min_epochs": 1, "max_epochs": 9}}}
+         "task": {"demo": {"samples": 40, "probes": 28}},
+         "training": {"epochs": 12},
+         "search": {"budget": {"trials": 14},
+                    "pruner": {"min_epochs": 2, "max_epochs": 12}}}
 
 
 def _demo_file() -> Path:
@@ -27,8 +29,6 @@ def _demo_file() -> Path:
 
     path = Path(searcher.__file__).resolve().parents[1] / "studies" / "demo.yaml"
     if not path.exists():
-        from searcher.errors import UserError
-
         raise UserError.single(f"the demo study must exist next to the package, but {path} "
                                f"does not")
     return path
@@ -55,7 +55,7 @@ def _handle(args: argparse.Namespace) -> int:
 
     t0 = time.perf_counter()
     out = Path(args.out or ("runs/demo-quick" if args.quick else "runs/demo")).resolve()
-    out.mkdir(parents=True, exist_ok=True)
+    ensure_folder(out, "--out" if args.out else "output folder of the demo")
     path = out / "study.yaml"
     path.write_text(demo_study_text(out, args.quick))
     study = load_study(path)
