@@ -63,7 +63,8 @@ def _ratio_interval(a, b, target, reps=_REPS, seed=0):
     if len(ratios) < reps / 2:
         return None
     ratios = np.array(ratios)
-    return [float(np.percentile(ratios, q)) for q in (5, 50, 95)]
+    # empirical quantiles, no interpolation: resamples without a hit give infinite ratios
+    return [float(np.percentile(ratios, q, method="inverted_cdf")) for q in (5, 50, 95)]
 
 
 def _verdict(a, b, target, unit) -> tuple[str, list | None]:
@@ -74,14 +75,22 @@ def _verdict(a, b, target, unit) -> tuple[str, list | None]:
     if band is None:
         return "no clear difference: too few hits to bound the compute ratio", None
     lo, mid, hi = band
-    rng = f"(90% bootstrap interval {lo:.2g}–{hi:.2g}×, approximate)"
+
+    def inv(x):
+        return math.inf if x == 0 else 1 / x
+
+    def num(x):  # a resample with no hit on one side has an unbounded ratio
+        return "∞" if math.isinf(x) else f"{x:.2g}"
+
+    def rng(low, high):
+        return f"(90% bootstrap interval {num(low)}–{num(high)}×, approximate)"
     if lo > 1:
-        return (f"{b['study']} reaches the target with about {mid:.2g}× less compute "
-                f"({unit}) than {a['study']} {rng}"), band
-    if hi < 1:
-        return (f"{b['study']} needs about {1 / mid:.2g}× more compute ({unit}) than "
-                f"{a['study']} to reach the target {rng}"), band
-    return f"no clear difference between {a['study']} and {b['study']} {rng}", band
+        return (f"{b['study']} reaches the target with about {num(mid)}× less compute "
+                f"({unit}) than {a['study']} {rng(lo, hi)}"), band
+    if hi < 1:  # the same ratio read the other way round, interval inverted with it
+        return (f"{b['study']} needs about {num(inv(mid))}× more compute ({unit}) than "
+                f"{a['study']} to reach the target {rng(inv(hi), inv(lo))}"), band
+    return f"no clear difference between {a['study']} and {b['study']} {rng(lo, hi)}", band
 
 
 def _summary(pool, target) -> dict:

@@ -30,7 +30,7 @@ output:
 
 
 def _study(tmp_path, name, *, lmax="{whole: [1, 3]}", basis="{one_of: [bessel, gaussian]}",
-           sampler="tpe", extra="", seed=0):
+           sampler="tpe", extra="", seed=0, rare=3):
     path = tmp_path / f"{name}.yaml"
     path.write_text(BASE.format(name=name, lmax=lmax, basis=basis, sampler=sampler,
                                 out=tmp_path / f"out-{name}") + extra)
@@ -38,7 +38,7 @@ def _study(tmp_path, name, *, lmax="{whole: [1, 3]}", basis="{one_of: [bessel, g
     journal = study.output_dir / "study.journal"
     journal.parent.mkdir(parents=True, exist_ok=True)
     store = optuna.storages.JournalStorage(optuna.storages.journal.JournalFileBackend(str(journal)))
-    opt, _ = planted_study(n=40, rare=3, seed=seed, name=name, storage=store)
+    opt, _ = planted_study(n=40, rare=rare, seed=seed, name=name, storage=store)
     return study, opt
 
 
@@ -107,3 +107,20 @@ def test_cli_compare_and_analyze(tmp_path, capsys):
                                    out=tmp_path / "out-none"))
     assert main(["analyze", str(missing)]) == 2
     assert "journal must exist" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("order", ["rich first", "poor first"])
+def test_verdict_states_the_ratio_inside_its_interval(tmp_path, order):
+    # A space with many deep trials against one with few: whichever way round they are given,
+    # the verdict names the cheaper space and its point estimate lies inside the interval it
+    # prints (a bootstrap percentile interval contains its median by construction).
+    import re
+
+    rich, poor = _study(tmp_path, "rich", rare=14), _study(tmp_path, "poor", rare=2, seed=1)
+    pair = [rich, poor] if order == "rich first" else [poor, rich]
+    text = compare(pair, out_dir=tmp_path / "cmp")["verdicts"][0]["text"]
+    about = re.search(r"about ([0-9.e+]+)× (less|more)", text)
+    lo, hi = (float(v.replace("∞", "inf")) for v in
+              re.search(r"interval ([0-9.e+]+|∞)–([0-9.e+]+|∞)×", text).groups())
+    assert about and lo <= float(about.group(1)) <= hi and lo > 1, text
+    assert ("more" if order == "rich first" else "less") == about.group(2)
