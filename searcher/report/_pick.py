@@ -73,7 +73,7 @@ def decide(finalists: list[dict], *, seed: int = 0) -> tuple[dict, Outperform | 
         runner = contenders[1]
         duel = p_outperform(*paired_errors(best, runner), a=best["label"], b=runner["label"],
                             seed=seed)
-        said = (f"{best['label']} beat {runner['label']} on a share {fmt(duel.p)} of "
+        said = (f"P({best['label']} beats {runner['label']}) = {fmt(duel.p)} over "
                 f"{duel.n} paired seeds (interval [{fmt(duel.low)}, {fmt(duel.high)}])")
         if duel.conclusion == "b":
             chosen = runner
