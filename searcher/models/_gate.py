@@ -171,12 +171,16 @@ def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float) -> GateResu
 
 
 def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
-             tol: float = 1e-9, stats: dict | None = None) -> GateResult:
+             tol: float = 1e-9, stats: dict | None = None,
+             built: torch.nn.Module | None = None) -> GateResult:
     """Build the model of ``model_cfg`` (seeded) and gate it; see :func:`gate_model`.
 
     Args:
         stats: data statistics passed to :func:`build_model` (``degree_mean``), so the gated
             model is the one that will train.
+        built: the model already built from ``model_cfg`` (with ``stats``); when given it is
+            gated, through an exact float64 copy, instead of building a second one.  It must
+            be that config's model: the verdict is kept under ``model_cfg``.
 
     The verdict of an architecture is measured once per process, with the seed of the first
     call; later calls with the same model section, fields, target, tolerance and stats (any
@@ -190,7 +194,8 @@ def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
     if key not in _VERDICTS:
         with torch.random.fork_rng(devices=[]), default_dtype(torch.float64):
             torch.manual_seed(seed)
-            model = build_model(model_cfg, fields, target, stats=stats)
+            model = (_exact_copy(built) if built is not None
+                     else build_model(model_cfg, fields, target, stats=stats))
             _VERDICTS[key] = _gate(model, fields, seed, tol)
         while len(_VERDICTS) > _VERDICTS_KEPT:
             _VERDICTS.pop(next(iter(_VERDICTS)))

@@ -147,9 +147,10 @@ class TrialRunner:
 
         target = self.dataset.target.name
         graphs = self.dataset.stats["graphs"]  # degree_mean scales `aggregate: degree`
-        gate = run_gate(config["model"], self.dataset.fields, target, seed=seed, stats=graphs)
         torch.manual_seed(seed)
         model = build_model(config["model"], self.dataset.fields, target, stats=graphs)
+        gate = run_gate(config["model"], self.dataset.fields, target, seed=seed, stats=graphs,
+                        built=model)  # the model that trains, not a second build
         cost = estimate_cost(model, self._cost_stats(config))
         trial.set_user_attr("gate", gate.to_dict())
         trial.set_user_attr("cost", cost.to_dict())

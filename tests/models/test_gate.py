@@ -134,3 +134,18 @@ def test_gate_is_deterministic():
     assert a == b
     # symmetric 3x3 = 0e + 2e (REFERENCES.md)
     assert o3.Irreps(NODE["stress"].irreps) == o3.Irreps("0e+2e")
+
+
+def test_gating_the_built_model_matches_building_one():
+    # The search gates the float32 model it trains (through an exact float64 copy) instead of
+    # building a second one; the verdict must be as strict: below the 1e-9 float64 tolerance
+    # for a sound model (e3nn equivariance_error as the reference), caught for a broken one.
+    cfg = model_config({**TINY, "family": "steerable", "width": 9})
+    torch.manual_seed(0)
+    built = build_model(cfg, DEMO, "anisotropy")
+    result = run_gate(cfg, DEMO, "anisotropy", seed=1, built=built)
+    assert result.passed and result.equivariance_error < 1e-9
+    broken_cfg = model_config({**TINY, "family": "gated", "width": 11})
+    broken = _VectorBias(build_model(broken_cfg, DEMO, "anisotropy"))
+    verdict = run_gate(broken_cfg, DEMO, "anisotropy", seed=1, built=broken)
+    assert not verdict.passed and verdict.equivariance_error > 1e-3
