@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
+import uuid
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -165,9 +167,15 @@ def _save_cache(path: Path, ds: Dataset) -> None:
     meta = {"split": ds.split, "normaliser": ds.normaliser.to_dict(), "stats": ds.stats,
             "fields": {k: f.to_dict() for k, f in ds.fields.items()}, "labels": labels}
     path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".part.npz")   # atomic: readers never see half a file
-    np.savez(tmp, meta=np.array(json.dumps(meta)), **arrays)
-    tmp.replace(path)
+    # Atomic: readers never see half a file.  The temporary name is this process's own, so
+    # identical commands that build the same dataset at once (workers of one study on one
+    # host) each finish their own copy; the last rename wins, and the contents are the same.
+    tmp = path.with_name(f"{path.name}.{os.getpid()}-{uuid.uuid4().hex[:8]}.part.npz")
+    try:
+        np.savez(tmp, meta=np.array(json.dumps(meta)), **arrays)
+        tmp.replace(path)
+    finally:
+        tmp.unlink(missing_ok=True)
 
 
 def _load_cache(path: Path, fields: dict[str, Field], digest: str) -> Dataset:

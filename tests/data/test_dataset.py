@@ -162,3 +162,26 @@ def test_describe_fields_demo(default_task):
     assert {k: f.irreps for k, f in fields.items()} == {
         "velocity": "1o", "pressure": "0e", "pressure_gradient": "1o", "strain_rate": "2e",
         "vorticity": "1e", "anisotropy": "2e"}
+
+
+def test_simultaneous_builds_share_one_cache_file(small_task, tmp_path):
+    # Workers of one study on one host build the same dataset at the same moment; each must
+    # finish (own temporary file, atomic rename) and leave one readable cache behind.
+    import threading
+
+    errors, built = [], []
+
+    def build():
+        try:
+            built.append(build_dataset(small_task, cache_dir=tmp_path))
+        except Exception as err:  # noqa: BLE001 - any failure is the test's failure
+            errors.append(err)
+
+    threads = [threading.Thread(target=build) for _ in range(3)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert errors == [] and len(built) == 3
+    assert len(list(tmp_path.glob("data-*.npz"))) == 1 and not list(tmp_path.glob("*.part.*"))
+    assert build_dataset(small_task, cache_dir=tmp_path).hash == built[0].hash
