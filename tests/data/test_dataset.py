@@ -164,24 +164,23 @@ def test_describe_fields_demo(default_task):
         "vorticity": "1e", "anisotropy": "2e"}
 
 
+def _build_into(task, cache_dir):
+    build_dataset(task, cache_dir=cache_dir)
+
+
 def test_simultaneous_builds_share_one_cache_file(small_task, tmp_path):
-    # Workers of one study on one host build the same dataset at the same moment; each must
-    # finish (own temporary file, atomic rename) and leave one readable cache behind.
-    import threading
+    # Workers of one study on one host build the same dataset at the same moment, in separate
+    # processes; each must finish (own temporary file, atomic rename) and leave one readable
+    # cache behind.  Processes, not threads: torch's default dtype is process-wide.
+    import multiprocessing
 
-    errors, built = [], []
-
-    def build():
-        try:
-            built.append(build_dataset(small_task, cache_dir=tmp_path))
-        except Exception as err:  # noqa: BLE001 - any failure is the test's failure
-            errors.append(err)
-
-    threads = [threading.Thread(target=build) for _ in range(3)]
-    for t in threads:
-        t.start()
-    for t in threads:
-        t.join()
-    assert errors == [] and len(built) == 3
+    ctx = multiprocessing.get_context("fork")
+    procs = [ctx.Process(target=_build_into, args=(small_task, tmp_path)) for _ in range(3)]
+    for p in procs:
+        p.start()
+    for p in procs:
+        p.join(timeout=120)
+    assert [p.exitcode for p in procs] == [0, 0, 0]
     assert len(list(tmp_path.glob("data-*.npz"))) == 1 and not list(tmp_path.glob("*.part.*"))
-    assert build_dataset(small_task, cache_dir=tmp_path).hash == built[0].hash
+    first = build_dataset(small_task, cache_dir=tmp_path)
+    assert first.hash == build_dataset(small_task).hash
