@@ -36,6 +36,11 @@ TRUTH_DIR = Path("runs") / "bench-cache"
 # more than this many decades on both sides (validation noise on 8 graphs is a few percent).
 _CROSS_NOISE = 0.05
 
+# The second curve_fit row spares curves that may end within half a decade of the k-th
+# best (``margin: 0.5``): the separation the analysis layer demands between its groups, so a
+# curve that could still land in the best group is not cut for missing the top k.
+SPARE = 0.5
+
 _WORKER: dict = {}
 
 
@@ -177,17 +182,18 @@ def _bench_one(curves, good, note, *, max_epochs: int, min_epochs: int, rank: in
     from searcher.search import compare_pruners, replay_pruners
 
     factories = replay_pruners(max_epochs, min_epochs=min_epochs, warmup=min_epochs - 1,
-                               eta=eta, threshold=threshold, rank=rank)
+                               eta=eta, threshold=threshold, rank=rank, margins=(SPARE,))
     results = compare_pruners(curves, factories, good=good, seed=seed)
     table = {r.pruner: r.summary() for r in results}
-    ours = table["curve_fit"]
+    goals = {name: bool(row["epochs_ratio"] <= 1 / 3 and row["best_ratio"] <= 1.1
+                        and row["wrongly_pruned_rate"] <= 0.05)
+             for name, row in table.items() if name.startswith("curve_fit")}
     return {"pruners": table, "curves": len(curves), "epochs": max_epochs,
             "settings": {"min_epochs": min_epochs, "rank": rank, "threshold": threshold,
-                         "eta": eta, "order_seed": seed},
+                         "eta": eta, "order_seed": seed, "margins": [0.0, SPARE]},
             "crossing_pairs": crossing_pairs(curves, min_epochs),
             "clairvoyant_epochs_ratio": _clairvoyant_ratio(curves, good, min_epochs),
-            "goal_met": bool(ours["epochs_ratio"] <= 1 / 3 and ours["best_ratio"] <= 1.1
-                             and ours["wrongly_pruned_rate"] <= 0.05),
+            "goal_met": any(goals.values()), "goal_met_by": goals,
             "notes": [note]}
 
 

@@ -6,6 +6,9 @@ import torch
 from ._base import FAMILIES
 # Importing the family modules fills the registry.
 from . import _baselines, _gated, _steerable  # noqa: F401
+from ._build_cache import install
+
+install()  # e3nn's structure-only set-up is generated once per process (see _build_cache)
 
 __all__ = ["build_model"]
 

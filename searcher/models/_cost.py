@@ -18,7 +18,6 @@ passes (common practice).
 """
 from __future__ import annotations
 
-import copy
 import math
 import statistics
 import time
@@ -48,7 +47,7 @@ class Cost:
     madds_per_edge: int
     madds_per_node: int
     madds_per_epoch: float
-    step_ms: float
+    step_ms: float | None  # None: not timed
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -109,20 +108,32 @@ def _probe_batch(model, stats: dict, batch_size: int) -> Batch:
 
 
 def _step_ms(model: torch.nn.Module, batch: Batch, repeats: int) -> float:
-    trial = copy.deepcopy(model).train()
-    opt = torch.optim.Adam(trial.parameters(), lr=1e-3)
+    # Timed on the model itself and put back afterwards: a deep copy of an e3nn model costs
+    # more than the steps (its fx modules recompile), and the state dict holds every
+    # parameter and buffer the Adam steps and batch-norm statistics move.
+    saved = {k: v.detach().clone() for k, v in model.state_dict().items()}
+    was_training = model.training
+    params = list(model.parameters())
+    opt = torch.optim.Adam(params, lr=1e-3)
+    model.train()
 
     def step() -> None:
         opt.zero_grad()
-        trial(batch).pow(2).mean().backward()
+        model(batch).pow(2).mean().backward()
         opt.step()
 
-    step()  # warm-up: first calls allocate and build caches
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        step()
-        times.append((time.perf_counter() - start) * 1e3)
+    try:
+        step()  # warm-up: first calls allocate and build caches
+        times = []
+        for _ in range(repeats):
+            start = time.perf_counter()
+            step()
+            times.append((time.perf_counter() - start) * 1e3)
+    finally:
+        for p in params:
+            p.grad = None
+        model.load_state_dict(saved)
+        model.train(was_training)
     return statistics.median(times)
 
 
@@ -135,7 +146,8 @@ def estimate_cost(model: torch.nn.Module, stats: dict, *, batch_size: int = 8,
         stats: ``graphs`` (training graphs per epoch), ``nodes_mean``, ``edges_mean``
             (per graph), as :func:`searcher.data.graph_stats` names them.
         batch_size: graphs in the probe batch that is timed.
-        repeats: timed steps after one warm-up (the median is reported).
+        repeats: timed steps after one warm-up (the median is reported); 0 leaves the
+            step untimed (``step_ms`` None).
 
     Example::
 
@@ -146,7 +158,7 @@ def estimate_cost(model: torch.nn.Module, stats: dict, *, batch_size: int = 8,
     nodes = float(stats.get("nodes_mean", 0))
     edges = float(stats.get("edges_mean", 0))
     epoch = (per_edge * edges + per_node * nodes) * float(stats.get("graphs", 0)) * 3
-    ms = _step_ms(model, _probe_batch(model, stats, batch_size), repeats)
+    ms = _step_ms(model, _probe_batch(model, stats, batch_size), repeats) if repeats else None
     return Cost(sum(p.numel() for p in model.parameters()), per_edge, per_node, epoch, ms)
 
 

@@ -51,7 +51,7 @@ class GateResult:
 
     params: int
     equivariance_error: float      # e3nn equivariance_error, float64
-    equivariance_error_f32: float  # the same in float32 (informative only)
+    equivariance_error_f32: float | None  # the same in float32 (informative; None: skipped)
     second_check_error: float      # scipy rotation + reflection, float64
     passed: bool
     reason: str
@@ -77,21 +77,19 @@ def gate_function(model: torch.nn.Module, fields: dict, radius: float):
     return f, names, irreps_in, model.irreps_out
 
 
-def _scale(f, args) -> float:
-    return max(1.0, float(f(*args).abs().max()))
-
-
-def _e3nn_error(model, fields, graph, radius) -> float:
+def _e3nn_error(model, fields, graph, radius, scale: float) -> float:
     f, names, irreps_in, irreps_out = gate_function(model, fields, radius)
     dtype = next(model.parameters()).dtype
     args = [graph.pos.to(dtype)] + [getattr(graph, n).to(dtype) for n in names]
     with torch.no_grad():
         errors = equivariance_error(f, args, irreps_in=irreps_in, irreps_out=[irreps_out],
                                     do_parity=True, do_translation=True)
-        return max(float(v.max()) for v in errors.values()) / _scale(f, args)
+        return max(float(v.max()) for v in errors.values()) / scale
 
 
-def _scipy_error(model, fields, graph, radius, seed: int) -> float:
+def _scipy_error(model, fields, graph, radius, seed: int) -> tuple[float, float]:
+    """Largest error under a scipy rotation and its inversion, and the output scale
+    ``max(1, max|f(x)|)`` that every error of the gate is divided by."""
     f, names, irreps_in, irreps_out = gate_function(model, fields, radius)
     args = [graph.pos] + [getattr(graph, n) for n in names]
     rot = torch.as_tensor(Rotation.random(random_state=seed).as_matrix(), dtype=torch.float64)
@@ -104,12 +102,13 @@ def _scipy_error(model, fields, graph, radius, seed: int) -> float:
                                                 for x, ir in zip(args[1:], irreps_in[1:])]
             expect = base @ irreps_out.D_from_matrix(g).T
             worst = max(worst, float((f(*moved) - expect).abs().max()))
-        return worst / _scale(f, args)
+        scale = max(1.0, float(base.abs().max()))
+        return worst / scale, scale
 
 
 def gate_model(model: torch.nn.Module, fields: dict, *, seed: int = 0,
                tol: float = 1e-9) -> GateResult:
-    """Gate an already built model (it is copied, never changed).
+    """Gate an already built model; it is changed only during the check and restored.
 
     Args:
         model: a model from :func:`build_model` (or anything with ``irreps_out``,
@@ -118,32 +117,49 @@ def gate_model(model: torch.nn.Module, fields: dict, *, seed: int = 0,
         seed: seed of the probe graph, its inputs and the rotations.
         tol: largest float64 error an equivariant model may show.
     """
-    with default_dtype(torch.float64):
-        return _gate(_exact_copy(model), fields, seed, tol)
+    with default_dtype(torch.float64), exact_float64(model) as m64:
+        return _gate(m64, fields, seed, tol)
 
 
 _W3J = re.compile(r"_w3j_(\d+)_(\d+)_(\d+)$")
 
 
-def _exact_copy(model: torch.nn.Module) -> torch.nn.Module:
-    """A float64 copy whose structural constants are exact, not upcast float32.
+@contextlib.contextmanager
+def exact_float64(model: torch.nn.Module):
+    """The model itself, for the duration of the block in float64 with exact constants.
 
     e3nn tensor products hold their Wigner 3j symbols as buffers made in the default dtype
     when the model was built. A model built in float32 and upcast keeps float32-rounded
     coupling coefficients, a genuine ~1e-7 symmetry break that would hide any real defect
-    below it; so they are rebuilt in float64. Learned weights and data statistics are kept.
+    below it; so they are rebuilt in float64. The model is converted in place rather than
+    deep-copied (a copy of an e3nn model costs about half a second: its fx modules
+    recompile); on exit its dtype, Wigner buffers, parameters and every buffer (batch-norm
+    running statistics that the checks' forward passes moved) are restored exactly, since
+    float32 -> float64 -> float32 is lossless.
     """
-    m64 = copy.deepcopy(model).to(torch.float64)
-    for name, buf in list(m64.named_buffers()):
+    dtype = next(model.parameters()).dtype
+    saved = {k: v.detach().clone() for k, v in model.state_dict().items()}
+    originals = []
+    model.to(torch.float64)
+    for name, _ in list(model.named_buffers()):
         match = _W3J.search(name)
         if match:
-            owner, leaf = m64.get_submodule(name.rsplit(".", 1)[0]), name.rsplit(".", 1)[1]
+            owner_name, leaf = name.rsplit(".", 1) if "." in name else ("", name)
+            owner = model.get_submodule(owner_name)
+            originals.append((owner, leaf, getattr(owner, leaf)))
             l1, l2, l3 = (int(g) for g in match.groups())
             setattr(owner, leaf, o3.wigner_3j(l1, l2, l3, dtype=torch.float64))
-    return m64
+    try:
+        yield model
+    finally:
+        model.to(dtype)
+        for owner, leaf, buf in originals:
+            setattr(owner, leaf, buf.to(dtype))
+        model.load_state_dict(saved)
 
 
-def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float) -> GateResult:
+def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float,
+          float32: bool = True) -> GateResult:
     geometry = getattr(m64, "geometry", None)
     cutoff = geometry.radial.cutoff if geometry is not None else 1.0
     # Every edge inside the radial cutoff, so the radial features take part.
@@ -153,12 +169,13 @@ def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float) -> GateResu
     with torch.random.fork_rng(devices=[]):
         torch.manual_seed(seed)  # e3nn draws its random transforms from torch's RNG
         with default_dtype(torch.float64):
-            err64 = _e3nn_error(m64, fields, graph, graph.graph_radius)
-            second = _scipy_error(m64, fields, graph, graph.graph_radius, seed)
-        # ``m64`` is the gate's own copy: converting it in place saves a deep copy, which
-        # costs as much as the checks themselves (e3nn's fx modules recompile when copied).
-        with default_dtype(torch.float32):
-            err32 = _e3nn_error(m64.to(torch.float32), fields, graph, graph.graph_radius)
+            second, scale = _scipy_error(m64, fields, graph, graph.graph_radius, seed)
+            err64 = _e3nn_error(m64, fields, graph, graph.graph_radius, scale)
+        err32 = None
+        if float32:  # informative only; converted in place (restored by exact_float64)
+            with default_dtype(torch.float32):
+                err32 = _e3nn_error(m64.to(torch.float32), fields, graph, graph.graph_radius,
+                                    scale)
     worst = max(err64, second)
     if not equivariant:
         return GateResult(params, err64, err32, second, True,
@@ -172,15 +189,17 @@ def _gate(m64: torch.nn.Module, fields: dict, seed: int, tol: float) -> GateResu
 
 def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
              tol: float = 1e-9, stats: dict | None = None,
-             built: torch.nn.Module | None = None) -> GateResult:
+             built: torch.nn.Module | None = None, float32: bool = True) -> GateResult:
     """Build the model of ``model_cfg`` (seeded) and gate it; see :func:`gate_model`.
 
     Args:
         stats: data statistics passed to :func:`build_model` (``degree_mean``), so the gated
             model is the one that will train.
         built: the model already built from ``model_cfg`` (with ``stats``); when given it is
-            gated, through an exact float64 copy, instead of building a second one.  It must
-            be that config's model: the verdict is kept under ``model_cfg``.
+            gated (converted to exact float64 for the check, then restored) instead of
+            building a second one.  It must be that config's model: the verdict is kept under ``model_cfg``.
+        float32: also measure the float32 error (informative, never decides; the search
+            skips it, saving 9 of the gate's 20 forward passes).
 
     The verdict of an architecture is measured once per process, with the seed of the first
     call; later calls with the same model section, fields, target, tolerance and stats (any
@@ -190,13 +209,16 @@ def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
 
         run_gate(cfg["model"], fields, "anisotropy").passed   # True
     """
-    key = _verdict_key(model_cfg, fields, target, tol, stats)
+    key = _verdict_key(model_cfg, fields, target, tol, stats, float32)
     if key not in _VERDICTS:
         with torch.random.fork_rng(devices=[]), default_dtype(torch.float64):
             torch.manual_seed(seed)
-            model = (_exact_copy(built) if built is not None
-                     else build_model(model_cfg, fields, target, stats=stats))
-            _VERDICTS[key] = _gate(model, fields, seed, tol)
+            if built is None:
+                _VERDICTS[key] = _gate(build_model(model_cfg, fields, target, stats=stats),
+                                       fields, seed, tol, float32)
+            else:
+                with exact_float64(built) as m64:
+                    _VERDICTS[key] = _gate(m64, fields, seed, tol, float32)
         while len(_VERDICTS) > _VERDICTS_KEPT:
             _VERDICTS.pop(next(iter(_VERDICTS)))
     return copy.deepcopy(_VERDICTS[key])
@@ -210,9 +232,10 @@ _VERDICTS: dict[str, GateResult] = {}
 _VERDICTS_KEPT = 256
 
 
-def _verdict_key(model_cfg: dict, fields: dict, target: str, tol: float, stats) -> str:
+def _verdict_key(model_cfg: dict, fields: dict, target: str, tol: float, stats,
+                 float32: bool) -> str:
     from searcher.spec import config_hash
 
     described = {k: [f.name, f.kind, str(f.irreps), f.role, f.level] for k, f in fields.items()}
     return config_hash({"model": model_cfg, "fields": described, "target": target,
-                        "tol": float(tol), "stats": stats or {}})
+                        "tol": float(tol), "stats": stats or {}, "float32": bool(float32)})

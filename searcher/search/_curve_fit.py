@@ -38,12 +38,20 @@ around it (all deterministic):
    pseudo-observation beside them (a beta-binomial blend): prune when
    ``(hits + P_fit) / (m + 1) < threshold``.  Many look-alikes that all failed make pruning
    decisive; one look-alike that later dropped past the target is enough to spare a curve.
+   Before a fit is possible (fewer than 5 points) the look-alikes speak alone, through
+   Laplace's rule of succession: prune when ``(hits + 1) / (m + 2) < threshold``.
 3. *Plateau guard*: with no look-alike, a curve whose best is still within noise of its first
    value (it has not started to learn) is not judged by the fit before half the budget.
 
 Related work: LC-PFN (Adriaensen et al., NeurIPS 2023) replaces the parametric mixture by a
 prior-fitted network trained on curves sampled from the same families; we keep the
 parametric fit because it needs no trained network and no GPU.
+
+``margin`` (decades, default 0) moves the target up from the k-th best value to
+``kth * 10**margin``: a curve that may still finish within that distance of the k-th best is
+spared.  With 0 the pruner serves "find the top k"; with 0.5 (the separation the analysis
+layer demands between its groups) it serves "keep every curve that may land in the best
+group", at the price of more epochs (docs/benchmarks.md has both on the replay).
 
 Known limit: before any look-alike has finished, a curve that has left its plateau and
 slowed down is judged by the fit alone, and the ground-truth good group is judged against
@@ -291,13 +299,14 @@ class CurveFitPruner(optuna.pruners.BasePruner):
         max_epochs: the full training budget in epochs (the extrapolation point).
         threshold: prune when P(final < target) is below this (Domhan et al. use 0.05).
         rank: k, the rank of the finished trial the running one must beat.
+        margin: decades above the k-th best value that still count as beating it.
 
     Example:
         >>> pruner = CurveFitPruner(min_epochs=5, max_epochs=30, threshold=0.05, rank=3)
     """
 
     def __init__(self, min_epochs: int = 1, max_epochs: int = 20, threshold: float = 0.05,
-                 rank: int = 3) -> None:
+                 rank: int = 3, margin: float = 0.0) -> None:
         if not 1 <= min_epochs < max_epochs:
             raise ValueError("1 <= min_epochs < max_epochs must hold, but got "
                              f"min_epochs={min_epochs}, max_epochs={max_epochs}.")
@@ -305,10 +314,13 @@ class CurveFitPruner(optuna.pruners.BasePruner):
             raise ValueError(f"0 < threshold < 1 must hold, but got threshold={threshold}.")
         if rank < 1:
             raise ValueError(f"rank >= 1 must hold, but got rank={rank}.")
+        if not 0.0 <= margin <= _MAX_DROP:
+            raise ValueError(f"0 <= margin <= {_MAX_DROP:g} must hold, but got margin={margin}.")
         self._min_epochs = int(min_epochs)
         self._max_epochs = int(max_epochs)
         self._threshold = float(threshold)
         self._rank = int(rank)
+        self._margin = float(margin)
 
     def _finished(self, study: optuna.Study) -> tuple[list[np.ndarray], list[float]]:
         """Curves and final values of COMPLETE trials (no finite value: best intermediate)."""
@@ -334,7 +346,7 @@ class CurveFitPruner(optuna.pruners.BasePruner):
         curves, finals = self._finished(study)
         if len(finals) < self._rank:
             return False
-        target = sorted(finals)[self._rank - 1]
+        target = sorted(finals)[self._rank - 1] * 10.0 ** self._margin
         curve = _curve_of(trial, step)
         finite = curve[np.isfinite(curve) & (curve > 0)]
         if finite.size == 0 or finite.min() <= target:
@@ -342,9 +354,12 @@ class CurveFitPruner(optuna.pruners.BasePruner):
         if _falling_fast(finite):
             return False                       # mid-drop: no fit can place the asymptote yet
         p_fit = prob_beats(curve, self._max_epochs, target)
-        if math.isnan(p_fit):
-            return False                       # too few points to fit: no evidence either way
         hits, seen = crossing_prior(curve, curves, finals, target)
+        if math.isnan(p_fit):
+            # Too few points to fit: only the look-alikes speak, through Laplace's rule of
+            # succession, (hits + 1) / (seen + 2); with the default threshold that takes 19
+            # finished look-alikes that all missed.
+            return seen > 0 and (hits + 1) / (seen + 2) < self._threshold
         if seen:
             # Beta-binomial blend: the fit counts as one pseudo-observation beside the
             # finished curves that looked like this one at this epoch.

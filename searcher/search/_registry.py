@@ -188,7 +188,8 @@ def _curve_fit(cfg):
     from ._curve_fit import CurveFitPruner
 
     return CurveFitPruner(min_epochs=int(cfg["min_epochs"]), max_epochs=int(cfg["max_epochs"]),
-                          threshold=float(cfg["threshold"]), rank=int(cfg["rank"]))
+                          threshold=float(cfg["threshold"]), rank=int(cfg["rank"]),
+                          margin=float(cfg["margin"]))
 
 
 def make_pruner(cfg: dict, *, file: str = "") -> optuna.pruners.BasePruner:

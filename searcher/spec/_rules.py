@@ -260,6 +260,7 @@ RULES: dict[str, Rule] = {
     "search.pruner.eta": Whole(2), "search.pruner.percentile": Real(0, 100, True, True),
     "search.pruner.warmup": Whole(0), "search.pruner.threshold": Real(0, 1, True, True),
     "search.pruner.rank": Whole(1),
+    "search.pruner.margin": Real(0, 6),
     "search.budget.trials": Whole(1), "search.budget.hours": Real(0),
     "search.budget.until": Text(r"|([01]\d|2[0-3]):[0-5]\d", "\"\" or a clock time HH:MM"),
     "search.workers": Whole(1, 1024), "search.seed": Whole(0), "search.storage": Text(),

@@ -62,3 +62,21 @@ def test_gate_samples_for_demo_config():
     assert good["passed"] and good["equivariance_error"] < 1e-9
     assert good["madds_per_epoch"] > 0 and good["step_ms"] > 0
     assert not rejected["passed"] and "2e" in rejected["reason"]
+
+
+def test_timed_steps_leave_the_model_as_it_was():
+    # The step timing runs Adam on the model itself and restores it: parameters, batch-norm
+    # statistics, gradients and the training flag are as before (bit for bit).
+    import torch
+
+    torch.manual_seed(0)
+    model = build_model(model_config({"family": "gated", "hidden.multiplicity": 2,
+                                      "layers": 1, "width": 8, "norm": "batch"}),
+                        make_fields(), "anisotropy").eval()
+    before = {k: v.clone() for k, v in model.state_dict().items()}
+    estimate_cost(model, {"graphs": 4, "nodes_mean": 10, "edges_mean": 40}, batch_size=2,
+                  repeats=2)
+    assert not model.training
+    assert all(p.grad is None for p in model.parameters())
+    for key, value in model.state_dict().items():
+        assert torch.equal(value, before[key]), key

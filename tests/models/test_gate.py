@@ -149,3 +149,23 @@ def test_gating_the_built_model_matches_building_one():
     broken = _VectorBias(build_model(broken_cfg, DEMO, "anisotropy"))
     verdict = run_gate(broken_cfg, DEMO, "anisotropy", seed=1, built=broken)
     assert not verdict.passed and verdict.equivariance_error > 1e-3
+
+
+def test_gating_leaves_the_model_exactly_as_built():
+    # The gate converts the trained model to float64 in place instead of copying it, so it
+    # must put back every parameter and buffer bit for bit (float32 -> float64 -> float32 is
+    # exact, IEEE 754), including batch-norm running statistics its forward passes moved,
+    # and the float32 Wigner 3j buffers e3nn built.
+    cfg = model_config({**TINY, "family": "steerable", "norm": "batch", "width": 7})
+    torch.manual_seed(0)
+    model = build_model(cfg, DEMO, "anisotropy")
+    before = {k: v.clone() for k, v in model.state_dict().items()}
+    buffers = {k: v.clone() for k, v in model.named_buffers()}
+    result = run_gate(cfg, DEMO, "anisotropy", seed=2, built=model)
+    assert result.passed and model.training
+    after = model.state_dict()
+    assert before.keys() == after.keys()
+    for key, value in before.items():
+        assert after[key].dtype == value.dtype and torch.equal(after[key], value), key
+    for key, value in model.named_buffers():
+        assert value.dtype == buffers[key].dtype and torch.equal(value, buffers[key]), key

@@ -162,8 +162,41 @@ def test_pruner_validation_and_direction():
         CurveFitPruner(threshold=1.5)
     with pytest.raises(ValueError, match="rank"):
         CurveFitPruner(rank=0)
+    with pytest.raises(ValueError, match="margin"):
+        CurveFitPruner(margin=-0.1)
     study = optuna.create_study(pruner=CurveFitPruner(), direction="maximize")
     trial = study.ask()
     trial.report(1.0, 1)
     with pytest.raises(ValueError, match="minimising"):
         trial.should_prune()
+
+
+def test_margin_spares_a_curve_ending_near_the_kth_best():
+    # Stalled at 5e-4: above the 3rd best finished value (3e-4), so the plain rule prunes it
+    # at min_epochs, but within half a decade of it (3e-4 x 10^0.5 = 9.5e-4, derived), so
+    # margin 0.5 keeps it; a stall at 1e-2 is pruned under both.
+    near = np.r_[1.0, 1e-2, np.full(28, 5e-4)] * (1 + 0.01 * np.sin(np.arange(30)))
+    far = np.r_[1.0, 0.1, np.full(28, 1e-2)] * (1 + 0.01 * np.sin(np.arange(30)))
+    assert _first_prune(_study(CurveFitPruner(min_epochs=8, max_epochs=30)), near) == 8
+    spare = CurveFitPruner(min_epochs=8, max_epochs=30, margin=0.5)
+    assert _first_prune(_study(spare), near) is None
+    assert _first_prune(_study(spare), far) == 8
+
+
+def _flat_study(look_alikes: int):
+    study = _study(CurveFitPruner(min_epochs=2, max_epochs=30))
+    for _ in range(look_alikes):  # finished curves flat at 0.1: all missed the target
+        t = study.ask()
+        for epoch in range(1, 31):
+            t.report(0.1 * (1 + 0.01 * math.sin(epoch)), epoch)
+        study.tell(t, 0.1)
+    return study
+
+
+def test_look_alikes_alone_prune_before_a_fit_is_possible():
+    # With fewer than 5 points no shape can be fitted; Laplace's rule of succession on the
+    # look-alikes, (hits + 1) / (seen + 2) < 0.05, needs 19 that all missed: 1/21 = 0.048
+    # prunes at min_epochs, 18 (1/20 = 0.05) do not, so the fit decides from epoch 5.
+    flat = 0.1 * (1 + 0.01 * np.cos(np.arange(30)))
+    assert _first_prune(_flat_study(19), flat) == 2
+    assert _first_prune(_flat_study(18), flat) >= 5

@@ -1,0 +1,158 @@
+"""Build-once caches for e3nn's per-module set-up, shared by every model of a process.
+
+Building a model is most of a small trial's fixed cost, and almost all of it is e3nn work
+that depends only on the module's structure, never on its weights:
+
+* every ``o3.TensorProduct`` generates its forward code with torch.fx and then optimises the
+  einsum contraction order with opt_einsum_fx (about three quarters of a build on the demo);
+* every ``nn.normalize2mom`` (inside each gate and activation) estimates its activation's
+  second moment from a million normal samples (about a fifth).
+
+A sweep builds the same structures again and again (the layers of one model share them, and
+trials redraw the same irreps), so both results are kept per structure:
+
+* the generated code of tensor products and of ``o3.Linear``: tensor products through
+  e3nn's own extension point, the ordered list of codegen providers
+  (``_CODEGEN_PROVIDERS_LEFT_RIGHT``, ours first), linears by wrapping
+  ``e3nn.o3._linear._codegen_linear``.  On a miss e3nn generates as usual; every module
+  then gets a *sibling* of the stored graph module (:func:`_sibling`: same generated
+  forward, its own containers and buffer copies, so no two modules share a tensor);
+* the moment through ``e3nn.math._normalize_activation.moment``, keyed by the function, the
+  order, the dtype and the device. e3nn draws its samples from a generator seeded with 0, so
+  the value is a pure function of that key.
+
+Both give bit-identical modules to a build without them (tests compare the outputs), so
+results stay deterministic for a given seed. :func:`install` is idempotent and runs when
+``searcher.models`` is imported.
+"""
+from __future__ import annotations
+
+import copy
+import threading
+from collections import OrderedDict
+
+import torch
+from torch import fx
+
+__all__ = ["install", "cache_info", "clear"]
+
+_KEPT = 512          # structures kept per cache (oldest dropped first)
+_LOCK = threading.Lock()
+_GRAPHS: OrderedDict = OrderedDict()
+_MOMENTS: OrderedDict = OrderedDict()
+_COUNTS = {"graph_hits": 0, "graph_misses": 0, "moment_hits": 0, "moment_misses": 0}
+_STATE: dict = {}
+
+
+def _remember(store: OrderedDict, key, value) -> None:
+    store[key] = value
+    while len(store) > _KEPT:
+        store.popitem(last=False)
+
+
+def _sibling(template: fx.GraphModule) -> fx.GraphModule:
+    """A new module running ``template``'s generated code, owning copies of its buffers.
+
+    torch.fx installs a GraphModule's compiled ``forward`` on a class made for that instance,
+    so an instance of the same class runs the same code without regenerating it (a new
+    ``GraphModule`` would copy the graph and recompile it: most of a warm build).  The new
+    instance gets its own containers (buffers, hooks, submodules) and buffer copies; only the
+    graph, which nothing mutates after code generation, is shared.
+    """
+    new = object.__new__(type(template))
+    new.__dict__.update({k: copy.copy(v) if isinstance(v, (dict, set, list)) else v
+                         for k, v in template.__dict__.items()})
+    for name, buf in list(new._buffers.items()):
+        if buf is not None:
+            new._buffers[name] = buf.clone()
+    return new
+
+
+def _lookup(key, make):
+    """The stored template of ``key`` (made by ``make()`` on a miss), as a sibling; a
+    template may be a tuple whose first item is the graph module (e3nn's linear codegen)."""
+    with _LOCK:
+        template = _GRAPHS.get(key)
+        if template is not None:
+            _GRAPHS.move_to_end(key)
+            _COUNTS["graph_hits"] += 1
+    if template is None:
+        template = make()
+        with _LOCK:
+            _COUNTS["graph_misses"] += 1
+            _remember(_GRAPHS, key, template)
+    if isinstance(template, tuple):
+        return (_sibling(template[0]), *template[1:])
+    return _sibling(template)
+
+
+def _left_right(irreps_in1, irreps_in2, irreps_out, instructions, shared_weights=False,
+                specialized_code=True, optimize_einsums=True):
+    """Tensor-product codegen provider with e3nn's signature, stored per structure."""
+    key = ("tp", str(irreps_in1), str(irreps_in2), str(irreps_out), tuple(instructions),
+           bool(shared_weights), bool(specialized_code), bool(optimize_einsums),
+           torch.get_default_dtype())
+    return _lookup(key, lambda: _STATE["codegen"](
+        irreps_in1, irreps_in2, irreps_out, instructions, shared_weights, specialized_code,
+        optimize_einsums))
+
+
+def _linear(irreps_in, irreps_out, instructions, f_in=None, f_out=None,
+            shared_weights=False, optimize_einsums=True):
+    """e3nn's ``_codegen_linear`` (graph module, weight and bias counts), stored."""
+    key = ("linear", str(irreps_in), str(irreps_out), tuple(instructions), f_in, f_out,
+           bool(shared_weights), bool(optimize_einsums), torch.get_default_dtype())
+    return _lookup(key, lambda: _STATE["linear"](
+        irreps_in, irreps_out, instructions, f_in, f_out, shared_weights, optimize_einsums))
+
+
+def _moment(f, n, dtype=None, device=None):
+    """e3nn's ``moment`` (``<f(z)^n>``, z standard normal from a generator seeded 0), kept."""
+    try:
+        key = (f, int(n), dtype, str(device) if device is not None else None,
+               torch.get_default_dtype())
+        hash(key)
+    except TypeError:          # an unhashable callable: nothing to key on
+        return _STATE["moment"](f, n, dtype=dtype, device=device)
+    with _LOCK:
+        if key in _MOMENTS:
+            _COUNTS["moment_hits"] += 1
+            return _MOMENTS[key].clone()
+    value = _STATE["moment"](f, n, dtype=dtype, device=device)
+    with _LOCK:
+        _COUNTS["moment_misses"] += 1
+        _remember(_MOMENTS, key, value.detach().clone())
+    return value
+
+
+def install() -> None:
+    """Put both caches in place (idempotent)."""
+    import e3nn.math._normalize_activation as norm_mod
+    import e3nn.o3._linear as linear_mod
+    import e3nn.o3._tensor_product._tensor_product as tp_mod
+    from e3nn.o3._tensor_product._codegen import codegen_tensor_product_left_right
+
+    with _LOCK:
+        if _STATE:
+            return
+        _STATE["codegen"] = codegen_tensor_product_left_right
+        _STATE["moment"] = norm_mod.moment
+        _STATE["linear"] = linear_mod._codegen_linear
+        tp_mod._CODEGEN_PROVIDERS_LEFT_RIGHT.insert(0, _left_right)
+        norm_mod.moment = _moment
+        linear_mod._codegen_linear = _linear
+
+
+def cache_info() -> dict:
+    """Hits and misses of both caches since the process started (or :func:`clear`)."""
+    with _LOCK:
+        return {**_COUNTS, "graphs": len(_GRAPHS), "moments": len(_MOMENTS)}
+
+
+def clear() -> None:
+    """Forget every stored structure (the next builds generate again)."""
+    with _LOCK:
+        _GRAPHS.clear()
+        _MOMENTS.clear()
+        for key in _COUNTS:
+            _COUNTS[key] = 0

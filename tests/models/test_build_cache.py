@@ -1,0 +1,67 @@
+"""Build-once caches of e3nn set-up: modules identical to e3nn's own uncached build."""
+from __future__ import annotations
+
+import e3nn.math._normalize_activation as norm_mod
+import e3nn.o3._tensor_product._tensor_product as tp_mod
+import torch
+from e3nn.o3._tensor_product._codegen import codegen_tensor_product_left_right
+
+from searcher.models import build_model, random_graph
+from searcher.models import _build_cache
+from searcher.testing import make_fields, model_config
+
+FIELDS = make_fields()
+CFG = model_config({"family": "steerable", "hidden.multiplicity": 2, "hidden.lmax": 2,
+                    "layers": 2, "radial.count": 4, "width": 6, "norm": "batch"})
+
+
+def _build_and_run(cfg):
+    torch.manual_seed(0)
+    model = build_model(cfg, FIELDS, "anisotropy")
+    graph = random_graph(FIELDS, 10, seed=4)
+    return model, model(graph)
+
+
+def test_cached_build_is_identical_to_e3nn_uncached(monkeypatch):
+    # Reference: e3nn's own path, its codegen provider list without ours and its moment().
+    _build_cache.clear()
+    cold_model, cold = _build_and_run(CFG)
+    warm_model, warm = _build_and_run(CFG)
+    info = _build_cache.cache_info()
+    assert info["graph_hits"] > 0 and info["moment_hits"] > 0
+    monkeypatch.setattr(tp_mod, "_CODEGEN_PROVIDERS_LEFT_RIGHT",
+                        [codegen_tensor_product_left_right])
+    monkeypatch.setattr(norm_mod, "moment", _build_cache._STATE["moment"])
+    ref_model, ref = _build_and_run(CFG)
+    assert torch.equal(cold, ref) and torch.equal(warm, ref)
+    ref_state = ref_model.state_dict()
+    for model in (cold_model, warm_model):
+        state = model.state_dict()
+        assert state.keys() == ref_state.keys()
+        assert all(torch.equal(state[k], ref_state[k]) for k in ref_state)
+
+
+def test_cached_modules_share_no_tensors():
+    # Two models of one structure must not share a buffer: converting one (as the gate does)
+    # leaves the other's Wigner 3j constants in float32.
+    _build_cache.clear()
+    first, _ = _build_and_run(CFG)
+    second, _ = _build_and_run(CFG)
+    ptrs = {b.data_ptr() for b in first.buffers() if b.numel()}
+    assert not ptrs & {b.data_ptr() for b in second.buffers() if b.numel()}
+    first.to(torch.float64)
+    assert all(b.dtype != torch.float64 for b in second.buffers())
+
+
+def test_cached_models_copy_and_pickle():
+    # Trainers copy the best state and the dossier saves models: a deep copy and a pickle
+    # round trip of a cached build must run the same function (torch.equal on one graph).
+    import copy
+    import pickle
+
+    _build_cache.clear()
+    _build_and_run(CFG)
+    model, out = _build_and_run(CFG)
+    graph = random_graph(FIELDS, 10, seed=4)
+    assert torch.equal(copy.deepcopy(model)(graph), out)
+    assert torch.equal(pickle.loads(pickle.dumps(model))(graph), out)
