@@ -129,8 +129,9 @@ def _headline(name: str, value) -> tuple[str, float | None]:
         return (f"{value['per_hour_2']:.0f} vs {value['per_hour_1']:.0f} trials/h",
                 value["ratio"])
     if name == "overhead":
-        return (f"{value['outside_s']:.2f} s outside of {value['trial_s']:.2f} s a trial",
-                value["fraction"])
+        return (f"cold pass {value['fraction_cold']:.2f}, warm pass "
+                f"{value['fraction_warm']:.2f}; {value['outside_s']:.2f} s outside of "
+                f"{value['trial_s']:.2f} s a trial (median)", value["fraction"])
     if name == "analysis_10k":
         return f"{value['n']} trials", value["seconds"]
     return "", None

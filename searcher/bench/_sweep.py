@@ -9,9 +9,13 @@ Divergence stops are switched off so every trial runs its planned epochs.
 * ``worker_scaling``: trials per hour, counted from the first trial's start to the last one's
   end in the store (process start-up and data generation, paid once a night, are left out),
   with 2 workers over 1.
-* ``overhead``: per trial, ``1 - (sum of the epoch seconds the trainer reported to MLflow) /
-  (trial wall time in the store)``: Optuna, storage, MLflow, the gate, the cost probe, model
-  building and the trainer's own set-up (collation, first validation) all count as outside.
+* ``overhead``: ``1 - (sum of the epoch seconds the trainer reported to MLflow) / (trial wall
+  time in the store)`` over a cold and a warm pass of the same configurations: Optuna,
+  storage, MLflow, the gate, the cost count, model building and the trainer's own set-up
+  (collation) all count as outside.
+
+Every sweep starts with the process's build caches and gate verdicts cleared, so one worker
+(a thread here) starts as cold as spawned workers.
 """
 from __future__ import annotations
 
@@ -63,9 +67,13 @@ def fixed_params(study, k: int, seed: int = 0) -> list[dict]:
 
 
 def _run(path: Path, params: list[dict], workers: int):
+    from searcher.models import clear_caches
     from searcher.search import open_store, run_study
     from searcher.spec import load_study
 
+    # A single worker runs in a thread of this process; start it as cold as the spawned
+    # workers of a multi-worker run, whatever earlier figures built here.
+    clear_caches()
     study = load_study(path)
     opt = open_store(study)
     for p in params:
@@ -100,29 +108,42 @@ def worker_scaling(*, trials: int, epochs: int, demo: dict | None = None,
 
 def overhead(*, trials: int, epochs: int, demo: dict | None = None,
              folder: Path | None = None) -> dict:
-    """Median and mean fraction of trial wall time spent outside the trainer's epochs."""
+    """Fraction of trial wall time spent outside the trainer's epochs, cold and warm.
+
+    ``trials`` configurations run twice in one single-worker sweep (the second time with new
+    trial seeds): the first pass builds and gates every architecture cold, the second finds
+    them in the worker's build caches and verdict cache, as most trials of a long sweep do.
+    ``fraction`` is the whole sweep's outside time over its trial time; the passes' medians
+    are kept as ``fraction_cold`` and ``fraction_warm``.
+    """
     from mlflow.tracking import MlflowClient
 
     with tempfile.TemporaryDirectory() as tmp:
         base = Path(folder or tmp)
-        path = sweep_study(base, "overhead", trials=trials, epochs=epochs, workers=1,
+        path = sweep_study(base, "overhead", trials=2 * trials, epochs=epochs, workers=1,
                            demo=demo)
         from searcher.spec import load_study
 
-        study, done = _run(path, fixed_params(load_study(path), trials), 1)
+        params = fixed_params(load_study(path), trials)
+        study, done = _run(path, params + params, 1)
         client = MlflowClient(tracking_uri=f"sqlite:///{base / 'overhead' / 'mlflow.db'}")
-        fractions, walls, inside = [], [], []
-        for t in done:
+        rows = []
+        for t in sorted(done, key=lambda t: t.number):
             run_id = t.user_attrs.get("mlflow_run_id")
             if t.datetime_complete is None or not run_id:
                 continue
             wall = (t.datetime_complete - t.datetime_start).total_seconds()
             train = sum(m.value for m in client.get_metric_history(run_id, "seconds"))
-            fractions.append(1.0 - train / wall)
-            walls.append(wall)
-            inside.append(train)
-        return {"trials": len(fractions), "epochs": epochs,
-                "fraction": statistics.median(fractions),
-                "fraction_mean": statistics.fmean(fractions),
-                "trial_s": statistics.median(walls), "training_s": statistics.median(inside),
-                "outside_s": statistics.median(w - i for w, i in zip(walls, inside))}
+            rows.append((t.number < trials, wall, train))
+        walls = sum(w for _, w, _ in rows)
+        inside = sum(i for _, _, i in rows)
+
+        def median_fraction(cold: bool) -> float:
+            picked = [1.0 - i / w for c, w, i in rows if c == cold]
+            return statistics.median(picked) if picked else float("nan")
+
+        return {"trials": len(rows), "epochs": epochs, "fraction": 1.0 - inside / walls,
+                "fraction_cold": median_fraction(True), "fraction_warm": median_fraction(False),
+                "trial_s": statistics.median(w for _, w, _ in rows),
+                "training_s": statistics.median(i for _, _, i in rows),
+                "outside_s": statistics.median(w - i for _, w, i in rows)}

@@ -9,7 +9,9 @@ the registries (:data:`FAMILIES`, :data:`RADIAL_BASES`, :data:`ENVELOPES`,
 from searcher.models._base import FAMILIES, FieldModel
 from searcher.models._build import build_model
 from searcher.models._cost import Cost, count_madds, estimate_cost, gate_samples
-from searcher.models._gate import GateResult, default_dtype, gate_function, gate_model, run_gate
+from searcher.models._build_cache import clear as clear_build_cache
+from searcher.models._gate import (GateResult, default_dtype, forget_verdicts, gate_function,
+                                   gate_model, run_gate)
 from searcher.models._geometry import EdgeContext, Geometry, attach_geometry
 from searcher.models._irreps import hidden_irreps, unreachable_irreps
 from searcher.models._probe import graph_from, radius_edges, random_graph
@@ -19,7 +21,14 @@ from searcher.models._registry import ACTIVATIONS, Registry
 __all__ = [
     "ACTIVATIONS", "Cost", "ENVELOPES", "EdgeContext", "FAMILIES", "FieldModel", "GateResult",
     "Geometry", "RADIAL_BASES", "RadialEmbedding", "Registry", "attach_geometry",
-    "build_model", "count_madds", "default_dtype", "estimate_cost", "gate_function", "gate_model",
+    "build_model", "clear_caches", "count_madds", "default_dtype", "estimate_cost", "gate_function", "gate_model",
     "gate_samples", "graph_from", "hidden_irreps", "radius_edges", "random_graph", "run_gate",
     "unreachable_irreps",
 ]
+
+
+def clear_caches() -> None:
+    """Forget the per-process build caches and gate verdicts: the next build and gate of
+    every architecture runs cold, as in a fresh worker process."""
+    clear_build_cache()
+    forget_verdicts()

@@ -22,7 +22,8 @@ from scipy.spatial.transform import Rotation
 from ._build import build_model
 from ._probe import graph_from, random_graph
 
-__all__ = ["GateResult", "run_gate", "gate_model", "gate_function", "default_dtype"]
+__all__ = ["GateResult", "run_gate", "gate_model", "gate_function", "default_dtype",
+           "forget_verdicts"]
 
 GATE_NODES = 12
 
@@ -239,3 +240,8 @@ def _verdict_key(model_cfg: dict, fields: dict, target: str, tol: float, stats,
     described = {k: [f.name, f.kind, str(f.irreps), f.role, f.level] for k, f in fields.items()}
     return config_hash({"model": model_cfg, "fields": described, "target": target,
                         "tol": float(tol), "stats": stats or {}, "float32": bool(float32)})
+
+
+def forget_verdicts() -> None:
+    """Forget every kept verdict (benchmarks start sweeps cold with it)."""
+    _VERDICTS.clear()

@@ -11,7 +11,8 @@ from ._live import config_line
 from ._outcomes import OUTCOMES, VALUED, best_record, finished, outcome_of, tally
 from ._recover import process_alive, recover
 from ._replay import (ReplayResult, compare_pruners, crossing_curves, format_replay_table,
-                      good_mask, measure_call_cost, replay, replay_pruners)
+                      good_mask, measure_call_cost, replay, replay_order,
+                      replay_pruners)
 from ._registry import (PRUNERS, SAMPLERS, SEED_STRIDE, grid_space, make_pruner, make_sampler,
                         register_pruner, register_sampler, sampler_seed)
 from ._rerun import rerun_config, study_dataset, train_config
@@ -32,5 +33,5 @@ __all__ = [
     "find_study_run", "flatten",
     "prepare_tracking", "TrialRunner", "trial_seed", "mask_url", "public_config", "tracking_uri",
     "ReplayResult", "compare_pruners", "crossing_curves", "format_replay_table", "good_mask",
-    "measure_call_cost", "replay", "replay_pruners", "config_line",
+    "measure_call_cost", "replay", "replay_order", "replay_pruners", "config_line",
 ]

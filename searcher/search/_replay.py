@@ -21,7 +21,8 @@ from optuna.trial import TrialState
 from searcher.search._curve_fit import CurveFitPruner
 from searcher.search._registry import make_pruner
 
-__all__ = ["ReplayResult", "crossing_curves", "good_mask", "replay", "compare_pruners",
+__all__ = ["ReplayResult", "crossing_curves", "good_mask", "replay", "replay_order",
+           "compare_pruners",
            "replay_pruners", "measure_call_cost", "format_replay_table"]
 
 
@@ -125,6 +126,11 @@ def good_mask(curves: Sequence[np.ndarray], decades: float = 1.0) -> np.ndarray:
     return best <= np.nanmin(best) * 10.0 ** decades
 
 
+def replay_order(n: int, seed: int) -> np.ndarray:
+    """The order in which :func:`replay` turns ``n`` curves into trials."""
+    return np.random.default_rng(seed).permutation(n)
+
+
 def replay(curves: Sequence[np.ndarray], pruner: optuna.pruners.BasePruner, *,
            good: np.ndarray | None = None, seed: int = 0, label: str = "") -> ReplayResult:
     """Replay one pruner over full curves in a real in-memory Optuna study.
@@ -165,7 +171,7 @@ def replay(curves: Sequence[np.ndarray], pruner: optuna.pruners.BasePruner, *,
                                 study_name=f"replay-{seed}")
     pruned_at: list[int | None] = [None] * len(arrays)
     spent = 0
-    for i in np.random.default_rng(seed).permutation(len(arrays)):
+    for i in replay_order(len(arrays), seed):
         trial = study.ask()
         best = math.inf
         for epoch, value in enumerate(arrays[i], start=1):
@@ -231,11 +237,12 @@ def format_replay_table(rows: Mapping[str, Mapping]) -> str:
     Args:
         rows: pruner label → :meth:`ReplayResult.summary` (also the benchmark record's form).
     """
-    lines = [f"{'pruner':<10} {'epoch ratio':>11} {'best ratio':>10} {'pruned':>6} "
+    width = max([10, *(len(label) for label in rows)])
+    lines = [f"{'pruner':<{width}} {'epoch ratio':>11} {'best ratio':>10} {'pruned':>6} "
              f"{'good cut':>9}"]
     for label, r in rows.items():
         cut = f"{round(r['wrongly_pruned_rate'] * r['good_size'])}/{r['good_size']}"
-        lines.append(f"{label:<10} {r['epochs_ratio']:>11.3f} {r['best_ratio']:>10.3f} "
+        lines.append(f"{label:<{width}} {r['epochs_ratio']:>11.3f} {r['best_ratio']:>10.3f} "
                      f"{r['pruned']:>6d} {cut:>9}")
     return "\n".join(lines)
 

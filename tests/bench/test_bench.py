@@ -70,7 +70,9 @@ def test_sweep_figures(tmp_path):
                        only=("worker_scaling", "overhead"))
     scale, over = record["figures"]["worker_scaling"], record["figures"]["overhead"]
     assert scale["per_hour_1"] > 0 and scale["per_hour_2"] > 0
-    assert over["trials"] == 2 and 0 <= over["fraction"] <= 1
+    # 2 configurations, each run once cold and once warm.
+    assert over["trials"] == 4 and 0 <= over["fraction"] <= 1
+    assert 0 <= over["fraction_warm"] <= 1 and 0 <= over["fraction_cold"] <= 1
     # The trainer's logged epoch seconds are part of the trial's wall time, never more.
     assert 0 < over["training_s"] <= over["trial_s"]
     table = format_table(record)

@@ -6,8 +6,9 @@ import math
 import numpy as np
 import yaml
 
-from searcher.bench._pruners import (bench_pruners, crossing_pairs, format_bench_pruners,
-                                     truth_curves)
+from searcher.bench._pruners import (_clairvoyant_ratio, _online_ratio, bench_pruners,
+                                     crossing_pairs, format_bench_pruners, truth_curves)
+from searcher.search import replay_order
 from searcher.testing import tiny_study_doc
 
 
@@ -39,6 +40,8 @@ def test_bench_pruners_tiny_ground_truth(tmp_path):
             assert r["best_ratio"] >= 1.0 or math.isnan(r["best_ratio"])
             assert r["good_size"] >= 1
         assert row["crossing_pairs"] >= 0 and 0.0 < row["clairvoyant_epochs_ratio"] <= 1.0
+        # Waiting for good finishers can only cost more than knowing everything at once.
+        assert row["clairvoyant_epochs_ratio"] <= row["online_epochs_ratio"] <= 1.0
         assert isinstance(row["goal_met"], bool)
     assert out["crossing"]["pruners"]["none"]["good_size"] == 2
     text = format_bench_pruners(out)
@@ -59,3 +62,16 @@ def test_crossing_pairs_counts_order_swaps():
     assert crossing_pairs([a, b, c], at=1) == 2
     assert crossing_pairs([b, d], at=1) == 0
     assert crossing_pairs([a, np.array([1.0])], at=2) == 0    # a diverged run is left out
+
+
+def test_epoch_bounds_by_hand():
+    # Four 10-epoch curves, one good; a pruner may act at epoch 2.  Clairvoyant: 10 + 3 x 2
+    # = 16 of 40 epochs.  Waiting for one good finisher: every curve before the good one in
+    # the replay order runs in full, the rest stop at 2 (hand count over the same order).
+    curves = [np.ones(10) for _ in range(4)]
+    good = np.array([False, False, True, False])
+    assert _clairvoyant_ratio(curves, good, 2) == 16 / 40
+    order = list(replay_order(4, seed=5))
+    before = order.index(2)
+    expected = (10 * before + 10 + 2 * (3 - before)) / 40
+    assert _online_ratio(curves, good, 2, rank=1, seed=5) == expected
