@@ -36,10 +36,9 @@ TRUTH_DIR = Path("runs") / "bench-cache"
 # more than this many decades on both sides (validation noise on 8 graphs is a few percent).
 _CROSS_NOISE = 0.05
 
-# The second curve_fit row spares curves that may end within half a decade of the k-th
-# best (``margin: 0.5``): the separation the analysis layer demands between its groups, so a
-# curve that could still land in the best group is not cut for missing the top k.
-SPARE = 0.5
+# A second curve_fit row runs the plain k-th-best rule (``margin: 0``) beside the study's
+# setting (default 0.5 decade), to show what the margin buys.
+PLAIN = 0.0
 
 _WORKER: dict = {}
 
@@ -201,11 +200,12 @@ def _online_ratio(curves: list[np.ndarray], good: np.ndarray, first: int, rank: 
 
 
 def _bench_one(curves, good, note, *, max_epochs: int, min_epochs: int, rank: int,
-               threshold: float, eta: int, seed: int) -> dict:
+               threshold: float, margin: float, eta: int, seed: int) -> dict:
     from searcher.search import compare_pruners, replay_pruners
 
     factories = replay_pruners(max_epochs, min_epochs=min_epochs, warmup=min_epochs - 1,
-                               eta=eta, threshold=threshold, rank=rank, margins=(SPARE,))
+                               eta=eta, threshold=threshold, rank=rank, margin=margin,
+                               margins=(PLAIN,) if margin != PLAIN else ())
     results = compare_pruners(curves, factories, good=good, seed=seed)
     table = {r.pruner: r.summary() for r in results}
     goals = {name: bool(row["epochs_ratio"] <= 1 / 3 and row["best_ratio"] <= 1.1
@@ -213,7 +213,7 @@ def _bench_one(curves, good, note, *, max_epochs: int, min_epochs: int, rank: in
              for name, row in table.items() if name.startswith("curve_fit")}
     return {"pruners": table, "curves": len(curves), "epochs": max_epochs,
             "settings": {"min_epochs": min_epochs, "rank": rank, "threshold": threshold,
-                         "eta": eta, "order_seed": seed, "margins": [0.0, SPARE]},
+                         "eta": eta, "order_seed": seed, "margin": margin},
             "crossing_pairs": crossing_pairs(curves, min_epochs),
             "clairvoyant_epochs_ratio": _clairvoyant_ratio(curves, good, min_epochs),
             "online_epochs_ratio": _online_ratio(curves, good, min_epochs, rank, seed),
@@ -253,6 +253,7 @@ def bench_pruners(quick: bool = False, *, study_path: str | Path = "studies/demo
     budget = epochs or (8 if quick else int(study.fixed()["training"]["epochs"]))
     min_epochs = min(int(pcfg["min_epochs"]), budget - 1)
     opts = dict(rank=int(pcfg["rank"]), threshold=float(pcfg["threshold"]),
+                margin=float(pcfg["margin"]),
                 eta=int(pcfg["eta"]), seed=0)
     out: dict = {}
     variants = {"demo": None,

@@ -204,7 +204,7 @@ def replay(curves: Sequence[np.ndarray], pruner: optuna.pruners.BasePruner, *,
 def replay_pruners(max_epochs: int, *, min_epochs: int = 1, eta: int = 3, warmup: int = 2,
                    percentile: float = 25.0, threshold: float = 0.05, rank: int = 3,
                    kinds: Sequence[str] = ("none", "median", "hyperband", "curve_fit"),
-                   margins: Sequence[float] = ()
+                   margin: float = 0.5, margins: Sequence[float] = ()
                    ) -> dict[str, Callable[[], optuna.pruners.BasePruner]]:
     """Factories for the pruners a replay compares, keyed by YAML pruner kind.
 
@@ -212,13 +212,13 @@ def replay_pruners(max_epochs: int, *, min_epochs: int = 1, eta: int = 3, warmup
     defaults.yaml), so a replay judges exactly the pruner a study would run.  Note that
     ``warmup`` epochs are never pruned by median/percentile, while ``min_epochs`` is the first
     epoch curve_fit may prune: ``warmup = min_epochs - 1`` lines them up.  Each of
-    ``margins`` adds a curve_fit row labelled ``curve_fit+<margin>`` with that ``margin``.
+    ``margins`` adds a curve_fit row labelled ``curve_fit margin=<m>`` with that margin.
     """
     cfg = {"min_epochs": min_epochs, "max_epochs": max_epochs, "eta": eta, "warmup": warmup,
-           "percentile": percentile, "threshold": threshold, "rank": rank, "margin": 0.0}
+           "percentile": percentile, "threshold": threshold, "rank": rank, "margin": margin}
     out = {kind: partial(make_pruner, {**cfg, "kind": kind}) for kind in kinds}
     for m in margins:
-        out[f"curve_fit+{m:g}"] = partial(make_pruner, {**cfg, "kind": "curve_fit",
+        out[f"curve_fit margin={m:g}"] = partial(make_pruner, {**cfg, "kind": "curve_fit",
                                                         "margin": float(m)})
     return out
 

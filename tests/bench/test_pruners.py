@@ -31,7 +31,8 @@ def test_bench_pruners_tiny_ground_truth(tmp_path):
             assert row["notes"]
             continue
         table = row["pruners"]
-        assert set(table) == {"none", "median", "hyperband", "curve_fit", "curve_fit+0.5"}
+        assert set(table) == {"none", "median", "hyperband", "curve_fit",
+                              "curve_fit margin=0"}
         # No pruning spends every epoch and keeps the best run (definition of the ratios).
         assert table["none"]["epochs_ratio"] == 1.0 and table["none"]["best_ratio"] == 1.0
         assert table["none"]["pruned"] == 0

@@ -177,7 +177,8 @@ def test_margin_spares_a_curve_ending_near_the_kth_best():
     # margin 0.5 keeps it; a stall at 1e-2 is pruned under both.
     near = np.r_[1.0, 1e-2, np.full(28, 5e-4)] * (1 + 0.01 * np.sin(np.arange(30)))
     far = np.r_[1.0, 0.1, np.full(28, 1e-2)] * (1 + 0.01 * np.sin(np.arange(30)))
-    assert _first_prune(_study(CurveFitPruner(min_epochs=8, max_epochs=30)), near) == 8
+    plain = CurveFitPruner(min_epochs=8, max_epochs=30, margin=0.0)
+    assert _first_prune(_study(plain), near) == 8
     spare = CurveFitPruner(min_epochs=8, max_epochs=30, margin=0.5)
     assert _first_prune(_study(spare), near) is None
     assert _first_prune(_study(spare), far) == 8
