@@ -22,7 +22,7 @@ __all__ = ["PLANS", "GOALS", "machine", "run_bench", "format_table", "main"]
 
 PLANS = {
     "quick": {"sizes": (1, 2, 3), "families": ("steerable",), "epochs": 2, "repeats": 3,
-              "flop_steps": 5, "scale_trials": 4, "scale_epochs": 4, "overhead_trials": 3,
+              "flop_steps": 5, "scale_trials": 8, "scale_epochs": 4, "overhead_trials": 3,
               "overhead_epochs": 4, "analysis_n": 10_000, "demo": {}},
     "full": {"sizes": (1, 2, 3), "families": ("steerable", "gated"), "epochs": 4, "repeats": 5,
              "flop_steps": 20, "scale_trials": 12, "scale_epochs": 12, "overhead_trials": 8,
