@@ -18,7 +18,7 @@ import numpy as np
 import optuna
 from optuna.trial import TrialState
 
-from searcher.search._curve_fit import CurveFitPruner
+from searcher.search._curve_fit import CurveFitPruner, prob_beats
 from searcher.search._registry import make_pruner
 
 __all__ = ["ReplayResult", "crossing_curves", "good_mask", "replay", "replay_order",
@@ -255,10 +255,11 @@ def measure_call_cost(points: int = 30, calls: int = 40, seed: int = 0) -> dict:
     extrapolation runs).  The numbers are for the benchmark; tests never assert on them.
 
     Returns:
-        ``{"points", "calls", "median_ms", "max_ms"}``.
+        ``{"points", "calls", "median_ms", "max_ms", "p_fit"}`` (``p_fit``: the fit's
+        probability for the judged curve, below 1 when the extrapolation ran).
     """
     curves, _ = crossing_curves(n_slow=3, n_fast=1, epochs=points + 1, seed=seed)
-    pruner = CurveFitPruner(min_epochs=1, max_epochs=points + 1, rank=3)
+    pruner = CurveFitPruner(min_epochs=1, max_epochs=points + 1, rank=3, margin=0.0)
     study = optuna.create_study(storage=optuna.storages.InMemoryStorage(), pruner=pruner,
                                 direction="minimize", study_name=f"cost-{seed}")
     for curve in curves[:3]:
@@ -275,5 +276,9 @@ def measure_call_cost(points: int = 30, calls: int = 40, seed: int = 0) -> dict:
         t0 = time.perf_counter()
         pruner.prune(study, frozen)
         times.append((time.perf_counter() - t0) * 1e3)
+    # The fit's own verdict on the judged curve: finite and below 1 shows the timed calls ran
+    # the whole extrapolation rather than an early exit.
+    target = sorted(float(c.min()) for c in curves[:3])[2]
+    p_fit = prob_beats(curves[3][:points], points + 1, target)
     return {"points": points, "calls": calls, "median_ms": float(np.median(times)),
-            "max_ms": float(np.max(times))}
+            "max_ms": float(np.max(times)), "p_fit": float(p_fit)}

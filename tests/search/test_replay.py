@@ -90,8 +90,11 @@ def test_measure_call_cost_reports_its_settings():
     # Timings are machine-dependent (no wall-clock thresholds): only the echoed settings and
     # the record's keys are checked.
     cost = measure_call_cost(points=30, calls=3)
-    assert set(cost) == {"points", "calls", "median_ms", "max_ms"}
+    assert set(cost) == {"points", "calls", "median_ms", "max_ms", "p_fit"}
     assert cost["points"] == 30 and cost["calls"] == 3
+    # The judged fast staller sits far above the slow starters' 3rd best, so the timed calls
+    # run the whole fit and it gives a small probability (an early exit would mean 1.0).
+    assert 0.0 <= cost["p_fit"] < 0.05
 
 
 def test_short_curve_is_a_diverged_run_not_a_pruned_one():
