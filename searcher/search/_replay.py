@@ -179,7 +179,7 @@ def replay(curves: Sequence[np.ndarray], pruner: optuna.pruners.BasePruner, *,
             trial.report(float(value), epoch)
             if math.isfinite(value):
                 best = min(best, float(value))
-            if trial.should_prune():
+            if epoch < budget and trial.should_prune():  # as the worker: never at the end
                 pruned_at[i] = epoch
                 break
         if pruned_at[i] is None and arrays[i].size == budget:

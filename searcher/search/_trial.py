@@ -164,6 +164,7 @@ class TrialRunner:
             trial.set_constraint(key, value)
 
         state = {"why": "", "epoch": 0}
+        last = int(config["training"]["epochs"])
         pending: list = []
         flushed = [time.monotonic()]
 
@@ -177,7 +178,9 @@ class TrialRunner:
             if self.should_stop():
                 state.update(why="interrupted", epoch=epoch)
                 return True
-            if trial.should_prune():
+            # The last epoch is never judged: the run is over, and Optuna's rung pruners
+            # would otherwise turn a finished trial into a pruned one at their top rung.
+            if epoch < last and trial.should_prune():
                 state.update(why="pruned", epoch=epoch)
                 return True
             return False

@@ -105,3 +105,18 @@ def test_short_curve_is_a_diverged_run_not_a_pruned_one():
     states = [t.state for t in r.study.trials]
     assert states.count(optuna.trial.TrialState.PRUNED) == 1     # told as the worker does
     assert r.best_ratio == 1.0
+
+
+class _LastEpochPruner(optuna.pruners.BasePruner):
+    """Prunes only at the 12th epoch, as Optuna's rung pruners may at their top rung."""
+
+    def prune(self, study, trial) -> bool:
+        return trial.last_step == 12
+
+
+def test_the_last_epoch_is_never_judged():
+    # A run that reached the full budget is finished: like the search worker, the replay
+    # does not ask the pruner then, so every curve completes and counts.
+    curves, slow = crossing_curves(2, 3, epochs=12, seed=2)
+    r = replay(curves, _LastEpochPruner(), good=slow, seed=0)
+    assert r.pruned == 0 and r.epoch_ratio == 1.0 and r.best_ratio == 1.0
