@@ -195,9 +195,10 @@ def _flat_study(look_alikes: int):
 
 
 def test_look_alikes_alone_prune_before_a_fit_is_possible():
-    # With fewer than 5 points no shape can be fitted; Laplace's rule of succession on the
-    # look-alikes, (hits + 1) / (seen + 2) < 0.05, needs 19 that all missed: 1/21 = 0.048
-    # prunes at min_epochs, 18 (1/20 = 0.05) do not, so the fit decides from epoch 5.
+    # With fewer than 5 points no shape can be fitted. Laplace's rule of succession on the
+    # look-alikes (textbook probability, e.g. Jaynes 2003, ch. 18; memory),
+    # (hits + 1) / (seen + 2) < 0.05, needs 19 that all missed: 1/21 = 0.048 prunes at
+    # min_epochs, 18 (1/20 = 0.05) do not, so the fit decides from epoch 5.
     flat = 0.1 * (1 + 0.01 * np.cos(np.arange(30)))
     assert _first_prune(_flat_study(19), flat) == 2
     assert _first_prune(_flat_study(18), flat) >= 5
