@@ -287,10 +287,6 @@ def bench_pruners(quick: bool = False, *, study_path: str | Path = "studies/demo
     return out
 
 
-def _rank_of(row: dict) -> int:
-    return int(row["settings"]["rank"])
-
-
 def format_bench_pruners(result: dict) -> str:
     """Plain-text tables of :func:`bench_pruners`, one block per configuration."""
     from searcher.search import format_replay_table
@@ -304,9 +300,10 @@ def format_bench_pruners(result: dict) -> str:
         lines.append(f"[{name}]")
         if "pruners" in row:
             lines.append(format_replay_table(row["pruners"]))
+            rank = row["settings"]["rank"]
             lines.append(f"crossing pairs: {row['crossing_pairs']}; clairvoyant epoch ratio: "
-                         f"{row['clairvoyant_epochs_ratio']:.3f} (waiting for {_rank_of(row)} "
-                         f"good finishers first: {row['online_epochs_ratio']:.3f}); goal met: "
+                         f"{row['clairvoyant_epochs_ratio']:.3f} (waiting for {rank} good "
+                         f"finishers first: {row['online_epochs_ratio']:.3f}); goal met: "
                          f"{row['goal_met']}")
         lines += [f"  note: {n}" for n in row["notes"]]
     return "\n".join(lines)

@@ -4,8 +4,11 @@ from __future__ import annotations
 import contextlib
 import io
 import signal
+import tempfile
+from pathlib import Path
+from typing import Callable
 
-__all__ = ["run_cli", "HANG_SECONDS"]
+__all__ = ["run_cli", "HANG_SECONDS", "assert_read_or_located"]
 
 HANG_SECONDS = 20
 
@@ -36,3 +39,18 @@ def run_cli(argv: list[str]) -> tuple[int, str]:
         signal.alarm(0)
         signal.signal(signal.SIGALRM, old)
     return int(code or 0), out.getvalue() + err.getvalue()
+
+
+def assert_read_or_located(name: str, write: Callable[[Path], None], argv: list[str]) -> None:
+    """Write a fuzzed file ``name`` with ``write(path)`` in a fresh folder, run
+    ``searcher <argv> <path> ...`` (the path replaces ``"{path}"`` in ``argv``) and assert
+    the answer is a success or a located error: exit 0 or 2, no traceback, and on 2 an
+    ``error:`` line naming the file."""
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / name
+        write(path)
+        code, out = run_cli([str(path) if a == "{path}" else a for a in argv])
+    assert "Traceback" not in out
+    assert code in (0, 2), out
+    if code == 2:
+        assert "error:" in out and name in out, out
