@@ -1,10 +1,11 @@
 """``loop_vs_reference`` and ``flop_utilisation``: the trainer against a hand-written loop.
 
-Both sides train the *same module object* from the same initial state dict on the same
-graphs (``fidelity_graphs`` of the demo dataset) for the same number of epochs, setup
-included (collation, geometry, validation passes); repetitions alternate A, B, A, B so slow
-drifts of a shared machine hit both, and medians are compared.  The reference is
-``scripts/reference_loop.py``.
+Both sides train the same architecture from the same initial state dict on the same graphs
+(``fidelity_graphs`` of the demo dataset) for the same number of epochs, setup included
+(collation, geometry, validation passes); repetitions alternate A, B, A, B so slow drifts of
+a shared machine hit both, and medians are compared.  Ours is the model ``build_model``
+gives (fused tensor-product kernels); the reference, ``scripts/reference_loop.py``, trains
+the plain-e3nn build of it (``kernels="e3nn"``), loaded with the same state dict.
 
 ``flop_utilisation`` divides the multiply-adds of one training step (tensor-product paths
 counted by :func:`searcher.models.count_madds`, forward + backward = 3 forward passes) by the
@@ -100,13 +101,15 @@ def loop_vs_reference(dataset, base: dict, *, sizes=(1, 2, 3), families=("steera
             torch.manual_seed(int(cfg["training"]["seed"]))
             model = build_model(cfg["model"], dataset.fields, dataset.target.name,
                                 stats=dataset.stats.get("graphs"))
+            plain = build_model(cfg["model"], dataset.fields, dataset.target.name,
+                                stats=dataset.stats.get("graphs"), kernels="e3nn")
             init = copy.deepcopy(model.state_dict())
             _ours(model, dataset, cfg, init)
-            _theirs(model, dataset, cfg, init)
+            _theirs(plain, dataset, cfg, init)
             ours, theirs = [], []
             for _ in range(repeats):
                 ours.append(_ours(model, dataset, cfg, init))
-                theirs.append(_theirs(model, dataset, cfg, init))
+                theirs.append(_theirs(plain, dataset, cfg, init))
             o, r = statistics.median(ours), statistics.median(theirs)
             rows.append({"family": family, "lmax": lmax, "epochs": epochs,
                          "ours_s": o, "reference_s": r, "ratio": r / o})

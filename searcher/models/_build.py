@@ -7,14 +7,17 @@ from ._base import FAMILIES
 # Importing the family modules fills the registry.
 from . import _baselines, _gated, _steerable  # noqa: F401
 from ._build_cache import install
+from ._fused import fuse_products
 
 install()  # e3nn's structure-only set-up is generated once per process (see _build_cache)
 
-__all__ = ["build_model"]
+__all__ = ["build_model", "KERNELS"]
+
+KERNELS = ("fused", "e3nn")
 
 
 def build_model(model_cfg: dict, fields: dict, target: str, *,
-                stats: dict | None = None) -> torch.nn.Module:
+                stats: dict | None = None, kernels: str = "fused") -> torch.nn.Module:
     """Build the model a resolved ``model`` section describes.
 
     Args:
@@ -24,6 +27,10 @@ def build_model(model_cfg: dict, fields: dict, target: str, *,
         stats: optional data statistics (as :func:`searcher.data.graph_stats` gives them);
             ``degree_mean`` (mean incoming edges per node) is the constant of
             ``aggregate: degree`` (1 when absent).
+        kernels: ``"fused"`` (default) evaluates the ``uvw``/``uvu`` tensor products with
+            :mod:`searcher.models._fused` (same weights and state dict, same sums in another
+            order, 1.1-1.5x faster training steps); ``"e3nn"`` keeps e3nn's generated code
+            (the benchmark's plain-e3nn reference).
 
     Returns:
         A module with ``irreps_in``, ``irreps_out``, ``equivariant``, ``fields``, ``target``;
@@ -37,4 +44,9 @@ def build_model(model_cfg: dict, fields: dict, target: str, *,
         model = build_model(cfg["model"], fields, "anisotropy")
         model(graph).shape   # torch.Size([12, 5])
     """
-    return FAMILIES.get(model_cfg["family"])(model_cfg, fields, target, stats)
+    if kernels not in KERNELS:
+        raise ValueError(f"kernels must be one of {KERNELS}, got {kernels!r}")
+    model = FAMILIES.get(model_cfg["family"])(model_cfg, fields, target, stats)
+    if kernels == "fused":
+        fuse_products(model)
+    return model

@@ -1,0 +1,258 @@
+"""Fused tensor-product kernels: e3nn's ``uvw`` / ``uvu`` products in a handful of large ops.
+
+e3nn generates one einsum chain per instruction (path); on a CPU with one thread and the
+small multiplicities of a search trial those hundreds of tiny kernels are bound by dispatch,
+not arithmetic, and tensor products are ~90 % of a training step.  The same sum, for
+``x1`` blocks of order ``l1`` (multiplicity ``U``), ``x2`` blocks of order ``l2`` and outputs
+of order ``l3``::
+
+    out[z, w, k] = Σ_p α_p Σ_{u,v,i,j} W_p[u, v, w] C_p[i, j, k] x1[z, u, i] x2[z, v, j]
+
+is evaluated in three stages that each cover *every* path at once:
+
+1. ``T_L = x2 @ C_L`` per input order ``L``: one matmul contracts ``x2`` with the Wigner 3j
+   symbols of all paths leaving order ``L`` (``[Z, 2L+1, K_L]``);
+2. ``Y_L = bmm(x1_L, T_L)``: the rows of every ``x1`` block of order ``L`` against it;
+3. ``uvw`` outputs: one gather of ``Y`` columns and one contraction with the gathered, scaled
+   weights per output block; ``uvu`` outputs: one gather of ``Y`` times the gathered weights.
+
+So a product costs about ``2 (lmax+1)`` + 2 per output block ops instead of ~4 per path, with
+arithmetic close to e3nn's.  The constants (3j symbols, indices, path weights ``α``) are made
+in float64 from :func:`e3nn.o3.wigner_3j` and cast per dtype on first use, so a model
+converted to float64 (the equivariance gate) computes with exact coefficients; they are not
+buffers, so state dicts are e3nn's own and load into either kernel.
+
+:func:`fuse_products` switches every supported product of a model in place (its class becomes
+a subclass that overrides ``forward`` only); unsupported modes (``uuu``, ``uvv``, ...),
+products without weights on a path, or with non-trivial batch broadcasting keep e3nn's code.
+"""
+from __future__ import annotations
+
+import math
+from collections import OrderedDict
+
+import torch
+from e3nn import o3
+
+__all__ = ["FusedProduct", "fuse_products", "fusable"]
+
+_MODES = ("uvw", "uvu")
+
+
+def fusable(tp: torch.nn.Module) -> bool:
+    """Whether :func:`fuse_products` can switch ``tp``: a plain ``o3.TensorProduct`` or
+    ``FullyConnectedTensorProduct`` whose every live path is ``uvw``/``uvu`` with weights."""
+    if type(tp) not in _FUSED_CLASSES:
+        return False
+    live = [ins for ins in tp.instructions if ins.path_weight != 0 and 0 not in ins.path_shape]
+    return bool(live) and all(ins.connection_mode in _MODES and ins.has_weight for ins in live)
+
+
+class FusedProduct:
+    """The staged evaluation of one tensor product's structure (see the module docstring).
+
+    Args:
+        tp: an e3nn tensor product accepted by :func:`fusable`.
+    """
+
+    def __init__(self, tp: o3.TensorProduct) -> None:
+        in1, in2, out = tp.irreps_in1, tp.irreps_in2, tp.irreps_out
+        self.dim1, self.dim2, self.dim_out = in1.dim, in2.dim, out.dim
+        self.shared = bool(tp.shared_weights)
+        s1, s2, so = in1.slices(), in2.slices(), out.slices()
+        offsets, flat = [], 0
+        for ins in tp.instructions:
+            offsets.append(flat)
+            flat += math.prod(ins.path_shape)
+        live = [(ins, off) for ins, off in zip(tp.instructions, offsets)
+                if ins.path_weight != 0 and 0 not in ins.path_shape]
+        # Stage 1/2 layout per input order L: rows (block, u), kernels (in2 block, v, l3).
+        groups: OrderedDict = OrderedDict()
+        for ins, _ in live:
+            l1 = in1[ins.i_in1].ir.l
+            g = groups.setdefault(l1, {"rows": OrderedDict(), "kernels": OrderedDict()})
+            if ins.i_in1 not in g["rows"]:
+                g["rows"][ins.i_in1] = sum(in1[b].mul for b in g["rows"])
+            for v in range(in2[ins.i_in2].mul):
+                key = (ins.i_in2, v, out[ins.i_out].ir.l)
+                if key not in g["kernels"]:
+                    g["kernels"][key] = sum(2 * k[2] + 1 for k in g["kernels"])
+        self.groups = []          # per L: (C_L [D2, (2L+1) K_L], R_L, K_L)
+        perm = []                 # x1 columns, group after group (one gather for all)
+        y_offset = {}
+        ytot = 0
+        for l1, g in groups.items():
+            d1 = 2 * l1 + 1
+            cols = [s1[b].start + u * d1 + i for b in g["rows"] for u in range(in1[b].mul)
+                    for i in range(d1)]
+            rows = sum(in1[b].mul for b in g["rows"])
+            width = sum(2 * k[2] + 1 for k in g["kernels"])
+            coupling = torch.zeros(self.dim2, d1, width, dtype=torch.float64)
+            for (b2, v, l3), k0 in g["kernels"].items():
+                l2 = in2[b2].ir.l
+                j0 = s2[b2].start + v * (2 * l2 + 1)
+                coupling[j0:j0 + 2 * l2 + 1, :, k0:k0 + 2 * l3 + 1] = \
+                    o3.wigner_3j(l1, l2, l3, dtype=torch.float64).permute(1, 0, 2)
+            perm += cols
+            self.groups.append((coupling.reshape(self.dim2, -1), rows, width))
+            y_offset[l1] = ytot
+            ytot += rows * width
+
+        def ycol(ins, u, v, k):
+            l1 = in1[ins.i_in1].ir.l
+            g = groups[l1]
+            width = sum(2 * kk[2] + 1 for kk in g["kernels"])
+            k0 = g["kernels"][(ins.i_in2, v, out[ins.i_out].ir.l)]
+            return y_offset[l1] + (g["rows"][ins.i_in1] + u) * width + k0 + k
+
+        # Stage 3.
+        self.blocks = []          # per output block: ("zero", dim) | ("uvw", ...) | ("uvu", ...)
+        for i_out, (mul_o, ir_o) in enumerate(out):
+            mine = [(ins, off) for ins, off in live if ins.i_out == i_out]
+            modes = {ins.connection_mode for ins, _ in mine}
+            if not mine:
+                self.blocks.append(("zero", mul_o * ir_o.dim))
+            elif modes == {"uvw"}:
+                rows, widx, coef = [], [], []   # rows: (path, u, v); gathered k-major
+                for ins, off in mine:
+                    m1, m2 = in1[ins.i_in1].mul, in2[ins.i_in2].mul
+                    for u in range(m1):
+                        for v in range(m2):
+                            rows.append((ins, u, v))
+                            widx += [off + (u * m2 + v) * mul_o + w for w in range(mul_o)]
+                            coef += [ins.path_weight] * mul_o
+                gather = [ycol(ins, u, v, k) for k in range(ir_o.dim) for ins, u, v in rows]
+                self.blocks.append(("uvw", torch.tensor(gather), torch.tensor(widx),
+                                    torch.tensor(coef, dtype=torch.float64),
+                                    len(gather) // ir_o.dim, mul_o, ir_o.dim))
+            else:               # uvu (alone or mixed with uvw: summed entry by entry)
+                entries = []    # (out column, Y column, weight index, coefficient)
+                for ins, off in mine:
+                    m1, m2 = in1[ins.i_in1].mul, in2[ins.i_in2].mul
+                    if ins.connection_mode == "uvw":
+                        for u in range(m1):
+                            for v in range(m2):
+                                for w in range(mul_o):
+                                    entries += [(w * ir_o.dim + k, ycol(ins, u, v, k),
+                                                 off + (u * m2 + v) * mul_o + w,
+                                                 ins.path_weight) for k in range(ir_o.dim)]
+                        continue
+                    for u in range(m1):
+                        for v in range(m2):
+                            entries += [(u * ir_o.dim + k, ycol(ins, u, v, k), off + u * m2 + v,
+                                         ins.path_weight) for k in range(ir_o.dim)]
+                entries.sort()
+                oc, yc, wi, cf = (list(c) for c in zip(*entries))
+                direct = oc == list(range(mul_o * ir_o.dim))
+                self.blocks.append(("uvu", torch.tensor(oc), torch.tensor(yc),
+                                    torch.tensor(wi), torch.tensor(cf, dtype=torch.float64),
+                                    mul_o * ir_o.dim, direct))
+        self.perm = torch.tensor(perm)
+        self.split1 = [rows * c.shape[1] // width for c, rows, width in self.groups]
+        # One gather of Y feeds every output block (each gather's backward fills a Y-sized
+        # zero tensor, so one gather a product, not one a block).
+        gathers, self.split_y = [], []
+        for b in self.blocks:
+            if b[0] != "zero":
+                gathers.append(b[1] if b[0] == "uvw" else b[2])
+                self.split_y.append(len(b[1] if b[0] == "uvw" else b[2]))
+        self.gather = torch.cat(gathers)
+        self._cast: dict = {}
+
+    def _constants(self, dtype: torch.dtype, device: torch.device):
+        key = (dtype, str(device))
+        if key not in self._cast:
+            def conv(t):
+                return t.to(device=device, dtype=dtype if t.is_floating_point() else t.dtype)
+            groups = [(conv(m), r, k) for m, r, k in self.groups]
+            blocks = [tuple(conv(x) if isinstance(x, torch.Tensor) else x for x in b)
+                      for b in self.blocks]
+            self._cast[key] = (groups, blocks, conv(self.perm), conv(self.gather))
+        return self._cast[key]
+
+    def __call__(self, x1: torch.Tensor, x2: torch.Tensor, weight: torch.Tensor) -> torch.Tensor:
+        lead = torch.broadcast_shapes(x1.shape[:-1], x2.shape[:-1],
+                                      () if self.shared else weight.shape[:-1])
+        x1 = x1.expand(*lead, self.dim1).reshape(-1, self.dim1)
+        x2 = x2.expand(*lead, self.dim2).reshape(-1, self.dim2)
+        z = x1.shape[0]
+        if not self.shared:
+            weight = weight.expand(*lead, weight.shape[-1]).reshape(z, -1)
+        groups, blocks, perm, gather = self._constants(x1.dtype, x1.device)
+        x1s = x1.index_select(1, perm).split(self.split1, 1)
+        ys = [torch.bmm(x.reshape(z, rows, -1), (x2 @ coupling).reshape(z, -1, width))
+              .reshape(z, -1) for x, (coupling, rows, width) in zip(x1s, groups)]
+        y = ys[0] if len(ys) == 1 else torch.cat(ys, 1)
+        parts = iter(y.index_select(1, gather).split(self.split_y, 1))
+        pieces = []
+        for block in blocks:
+            kind = block[0]
+            if kind == "zero":
+                pieces.append(x1.new_zeros(z, block[1]))
+            elif kind == "uvw":
+                _, _, widx, coef, rows, mul, dim = block
+                yo = next(parts).reshape(z, dim, rows)
+                w = weight.index_select(-1, widx) * coef
+                w = w.reshape(rows, mul) if self.shared else w.reshape(z, rows, mul)
+                pieces.append(torch.matmul(yo, w).transpose(1, 2).reshape(z, mul * dim))
+            else:
+                _, oc, _, wi, cf, dim, direct = block
+                prod = next(parts) * (weight.index_select(-1, wi) * cf)
+                pieces.append(prod if direct else
+                              prod.new_zeros(z, dim).index_add_(1, oc, prod))
+        out = pieces[0] if len(pieces) == 1 else torch.cat(pieces, 1)
+        return out.reshape(*lead, self.dim_out)
+
+
+class _FusedMixin:
+    """``forward`` through the product's :class:`FusedProduct` (same weights, same math)."""
+
+    def forward(self, x, y, weight=None):
+        torch._assert(x.shape[-1] == self._in1_dim, "Incorrect last dimension for x")
+        torch._assert(y.shape[-1] == self._in2_dim, "Incorrect last dimension for y")
+        return self._fused(x, y, self._get_weights(weight))
+
+
+class FusedTensorProduct(_FusedMixin, o3.TensorProduct):
+    """An ``o3.TensorProduct`` evaluated by :class:`FusedProduct`."""
+
+
+class FusedFullyConnectedTensorProduct(_FusedMixin, o3.FullyConnectedTensorProduct):
+    """An ``o3.FullyConnectedTensorProduct`` evaluated by :class:`FusedProduct`."""
+
+
+_FUSED_CLASSES = {o3.TensorProduct: FusedTensorProduct,
+                  o3.FullyConnectedTensorProduct: FusedFullyConnectedTensorProduct}
+
+
+def fuse_products(model: torch.nn.Module) -> int:
+    """Switch every :func:`fusable` tensor product of ``model`` to the fused kernel, in place.
+
+    Parameters, buffers and state-dict keys are unchanged, so a state dict moves freely
+    between a fused model and e3nn's; the plans are kept per structure.
+
+    Returns:
+        How many products were switched.
+    """
+    count = 0
+    for module in model.modules():
+        if fusable(module):
+            module._fused = _plan(module)
+            module.__class__ = _FUSED_CLASSES[type(module)]
+            count += 1
+    return count
+
+
+_PLANS: OrderedDict = OrderedDict()
+_KEPT = 512
+
+
+def _plan(tp: o3.TensorProduct) -> FusedProduct:
+    key = (str(tp.irreps_in1), str(tp.irreps_in2), str(tp.irreps_out),
+           tuple(tp.instructions), bool(tp.shared_weights))
+    plan = _PLANS.get(key)
+    if plan is None:
+        plan = _PLANS[key] = FusedProduct(tp)
+        while len(_PLANS) > _KEPT:
+            _PLANS.popitem(last=False)
+    return plan

@@ -1,0 +1,170 @@
+"""Fused tensor-product kernels against e3nn's own generated code (the reference library)."""
+from __future__ import annotations
+
+import copy
+import pickle
+
+import pytest
+import torch
+from e3nn import o3
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from searcher.models import build_model, default_dtype, random_graph
+from searcher.models._fused import FusedProduct, fuse_products, fusable
+from searcher.testing import make_fields, model_config
+
+FIELDS = make_fields()
+
+
+def _uvu(hidden: str, lmax: int, shared: bool) -> o3.TensorProduct:
+    """A NequIP-style depthwise product (one output block per path), as the gated family."""
+    hidden, sh = o3.Irreps(hidden), o3.Irreps.spherical_harmonics(lmax)
+    mid, ins = [], []
+    for i, (mul, a) in enumerate(hidden):
+        for j, (_, b) in enumerate(sh):
+            for c in a * b:
+                ins.append((i, j, len(mid), "uvu", True))
+                mid.append((mul, c))
+    return o3.TensorProduct(hidden, sh, o3.Irreps(mid), ins, shared_weights=shared,
+                            internal_weights=shared)
+
+
+CASES = {
+    # the steerable family's message product: concatenated features x SH(2) -> gate input
+    "fully connected, message": lambda: o3.FullyConnectedTensorProduct(
+        "3x0e+3x1o+3x2e+3x0e+3x1o+3x2e+2x0e", "1x0e+1x1o+1x2e", "9x0e+3x1o+3x2e"),
+    "fully connected, mul2 > 1, both parities": lambda: o3.FullyConnectedTensorProduct(
+        "2x0e+3x1o+1x1e", "2x0e+2x1o", "3x0e+2x1o+1x2e+1x1e+1x0o"),
+    "fully connected, scalar attribute, unreachable output": lambda:
+        o3.FullyConnectedTensorProduct("2x0e+3x1o", "1x0e", "3x0e+2x1o+2x2e"),
+    "fully connected, weights per sample": lambda: o3.FullyConnectedTensorProduct(
+        "2x0e+2x1o", "1x0e+1x1o", "2x0e+2x1o", shared_weights=False),
+    "depthwise, weights per edge": lambda: _uvu("3x0e+3x1o+3x2e", 2, False),
+    "depthwise, shared, lmax 3": lambda: _uvu("2x0e+2x1o+2x2e+2x3o", 3, True),
+    "depthwise into shared outputs, mul2 > 1": lambda: o3.TensorProduct(
+        "3x0e+3x1o", "2x0e+1x1o", "3x0e+3x1o",
+        [(0, 0, 0, "uvu", True), (1, 0, 1, "uvu", True), (1, 1, 0, "uvu", True),
+         (0, 1, 1, "uvu", True)], shared_weights=False, internal_weights=False),
+    "uvw and uvu into one block": lambda: o3.TensorProduct(
+        "3x0e+3x1o", "2x0e+1x1o", "3x0e+3x1o",
+        [(0, 0, 0, "uvu", True), (1, 0, 1, "uvw", True), (1, 1, 0, "uvu", True)]),
+}
+
+
+def _compare(tp: o3.TensorProduct, batch: int = 5, seed: int = 0):
+    """Outputs and gradients (inputs and weights) of e3nn's code and of the fused kernel."""
+    gen = torch.Generator().manual_seed(seed)
+    x1 = torch.randn(batch, tp.irreps_in1.dim, generator=gen, dtype=torch.float64)
+    x2 = torch.randn(batch, tp.irreps_in2.dim, generator=gen, dtype=torch.float64)
+    w = None if tp.internal_weights else torch.randn(batch, tp.weight_numel, generator=gen,
+                                                     dtype=torch.float64)
+    results = []
+    for module in (tp, _fused_copy(tp)):
+        a, b = x1.clone().requires_grad_(), x2.clone().requires_grad_()
+        extra = () if w is None else (w.clone().requires_grad_(),)
+        out = module(a, b, *extra)
+        weights = list(module.parameters()) + list(extra)
+        grads = torch.autograd.grad((out * torch.cos(out)).sum(), [a, b, *weights])
+        results.append((out, grads))
+    return results
+
+
+def _fused_copy(tp):
+    fused = copy.deepcopy(tp)
+    assert fuse_products(fused) == 1
+    return fused
+
+
+@pytest.mark.parametrize("name", list(CASES))
+def test_fused_matches_e3nn_outputs_and_gradients(name):
+    # Reference: e3nn 0.6's generated tensor-product code on the same weights, in float64.
+    # Built in float64, so e3nn's own Wigner 3j buffers are exact too.
+    torch.manual_seed(1)
+    with default_dtype(torch.float64):
+        tp = CASES[name]()
+    (ref, ref_grads), (out, grads) = _compare(tp)
+    assert out.shape == ref.shape
+    torch.testing.assert_close(out, ref, rtol=0, atol=1e-12)
+    for g, rg in zip(grads, ref_grads):
+        torch.testing.assert_close(g, rg, rtol=0, atol=1e-11)
+
+
+@settings(max_examples=12, deadline=None)
+@given(muls=st.lists(st.integers(1, 3), min_size=2, max_size=4), l2max=st.integers(0, 2),
+       outs=st.lists(st.integers(0, 3), min_size=3, max_size=3))
+def test_fused_matches_e3nn_on_random_structures(muls, l2max, outs):
+    # Reference: e3nn's FullyConnectedTensorProduct on random irreps of both parities.
+    irreps = [(m, (l, (-1) ** (l + k))) for k, m in enumerate(muls) for l in [k % 3]]
+    in1 = o3.Irreps(irreps)
+    in2 = o3.Irreps.spherical_harmonics(l2max)
+    out = o3.Irreps([(m, (l, p)) for l, m in enumerate(outs) for p in (1, -1) if m])
+    torch.manual_seed(0)
+    with default_dtype(torch.float64):
+        tp = o3.FullyConnectedTensorProduct(in1, in2, out)
+    if not fusable(tp):  # no path reaches the outputs: nothing to compare
+        return
+    (ref, ref_grads), (got, grads) = _compare(tp, batch=3)
+    torch.testing.assert_close(got, ref, rtol=0, atol=1e-12)
+    for g, rg in zip(grads, ref_grads):
+        torch.testing.assert_close(g, rg, rtol=0, atol=1e-11)
+
+
+def test_unsupported_products_keep_e3nn_code():
+    # The gates' element-wise product ('uuu') and weightless paths stay on e3nn's code.
+    elementwise = o3.ElementwiseTensorProduct("2x1o", "2x0e")
+    weightless = o3.TensorProduct("2x1o", "1x0e", "2x1o", [(0, 0, 0, "uvu", False)])
+    assert not fusable(elementwise) and not fusable(weightless)
+    holder = torch.nn.ModuleList([elementwise, weightless])
+    assert fuse_products(holder) == 0
+    assert type(elementwise) is o3.ElementwiseTensorProduct
+
+
+@pytest.mark.parametrize("family", ["steerable", "gated"])
+def test_fused_model_equals_plain_e3nn_model(family):
+    # Reference: the same architecture built on e3nn's code, loaded with the same state dict.
+    cfg = model_config({"family": family, "hidden.multiplicity": 2, "hidden.lmax": 2,
+                        "layers": 2, "radial.count": 4, "width": 6})
+    torch.manual_seed(0)
+    fused = build_model(cfg, FIELDS, "anisotropy")
+    plain = build_model(cfg, FIELDS, "anisotropy", kernels="e3nn")
+    assert any(fusable(m) for m in plain.modules())
+    assert not any(fusable(m) for m in fused.modules())  # every candidate was switched
+    assert fused.state_dict().keys() == plain.state_dict().keys()
+    plain.load_state_dict(fused.state_dict())
+    graph = random_graph(FIELDS, 10, seed=4)
+    # float32 on both sides: the same sums in another order (float32 rounding apart).
+    torch.testing.assert_close(fused(graph), plain(graph), rtol=1e-4, atol=1e-6)
+
+
+def test_float64_conversion_uses_exact_coupling_constants():
+    # A fused product built in float32 and converted to float64 evaluates with the float64
+    # Wigner 3j symbols of e3nn.o3.wigner_3j (reference library), not float32-rounded ones:
+    # it matches a product built in float64 to float64 rounding.
+    torch.manual_seed(0)
+    tp32 = o3.FullyConnectedTensorProduct("2x1o+2x2e", "1x0e+1x1o+1x2e", "2x0e+2x1o+2x2e")
+    fuse_products(tp32)
+    with torch.no_grad():
+        tp32.weight.copy_(tp32.weight.to(torch.bfloat16).float())  # exact in float32
+    tp64 = copy.deepcopy(tp32).to(torch.float64)
+    x1 = torch.randn(4, tp32.irreps_in1.dim, dtype=torch.float64)
+    x2 = torch.randn(4, tp32.irreps_in2.dim, dtype=torch.float64)
+    exact = FusedProduct(tp32)(x1, x2, tp32.weight.detach().double())
+    torch.testing.assert_close(tp64(x1, x2), exact, rtol=0, atol=1e-13)
+    assert tp32(x1.float(), x2.float()).dtype == torch.float32
+
+
+def test_fused_models_copy_and_pickle():
+    # Trainers deep-copy best states and the dossier pickles models: both round trips keep
+    # the fused class and compute the same function.
+    cfg = model_config({"family": "gated", "hidden.multiplicity": 2, "hidden.lmax": 1,
+                        "layers": 1, "radial.count": 4, "width": 6})
+    torch.manual_seed(0)
+    model = build_model(cfg, FIELDS, "anisotropy")
+    graph = random_graph(FIELDS, 8, seed=2)
+    ref = model(graph)
+    for other in (copy.deepcopy(model), pickle.loads(pickle.dumps(model))):
+        assert torch.equal(other(graph), ref)
+        kinds = [type(m).__name__ for m in other.modules() if "Fused" in type(m).__name__]
+        assert kinds == [type(m).__name__ for m in model.modules()
+                         if "Fused" in type(m).__name__] and kinds
