@@ -65,6 +65,8 @@ class Dataset:
         split: ``{"train", "val", "test"}`` → indices into ``graphs``.
         stress: stress-set name → list of Data (built from test samples / held-out families).
         normaliser: fitted on the train split.  hash: the data hash.  stats: counts.
+        cache_dir: the folder it was cached in (None without a cache); later stages keep
+            derived arrays there under names that start with the data hash's key.
     """
 
     fields: dict[str, Field]
@@ -74,6 +76,7 @@ class Dataset:
     normaliser: Normaliser
     hash: str
     stats: dict
+    cache_dir: Path | None = None
 
     @property
     def inputs(self) -> list[Field]:
@@ -146,10 +149,12 @@ def build_dataset(task_cfg: dict, cache_dir=None) -> Dataset:
     digest = data_hash(task_cfg)
     path = Path(cache_dir) / f"data-{digest}.npz" if cache_dir else None
     if path is not None and path.exists():
-        return _load_cache(path, fields, digest)
-    ds = _build(task_cfg, fields, digest)
-    if path is not None:
-        _save_cache(path, ds)
+        ds = _load_cache(path, fields, digest)
+    else:
+        ds = _build(task_cfg, fields, digest)
+        if path is not None:
+            _save_cache(path, ds)
+    ds.cache_dir = path.parent if path is not None else None
     return ds
 
 

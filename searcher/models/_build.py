@@ -6,7 +6,7 @@ import torch
 from ._base import FAMILIES
 # Importing the family modules fills the registry.
 from . import _baselines, _gated, _steerable  # noqa: F401
-from ._build_cache import install
+from ._build_cache import install, lean_codegen
 from ._fused import fuse_products
 
 install()  # e3nn's structure-only set-up is generated once per process (see _build_cache)
@@ -46,7 +46,9 @@ def build_model(model_cfg: dict, fields: dict, target: str, *,
     """
     if kernels not in KERNELS:
         raise ValueError(f"kernels must be one of {KERNELS}, got {kernels!r}")
-    model = FAMILIES.get(model_cfg["family"])(model_cfg, fields, target, stats)
-    if kernels == "fused":
-        fuse_products(model)
+    if kernels == "e3nn":
+        return FAMILIES.get(model_cfg["family"])(model_cfg, fields, target, stats)
+    with lean_codegen():
+        model = FAMILIES.get(model_cfg["family"])(model_cfg, fields, target, stats)
+    fuse_products(model)
     return model

@@ -22,7 +22,9 @@ trials redraw the same irreps), so both results are kept per structure:
   the value is a pure function of that key.
 
 Both give bit-identical modules to a build without them (tests compare the outputs), so
-results stay deterministic for a given seed. :func:`install` is idempotent and runs when
+results stay deterministic for a given seed.  Within :func:`lean_codegen` (fused builds),
+products the fused kernels will run are generated without the einsum-order search; their
+buffers and state dict are the same, only the unused fallback code is plainer. :func:`install` is idempotent and runs when
 ``searcher.models`` is imported.
 """
 from __future__ import annotations
@@ -30,11 +32,14 @@ from __future__ import annotations
 import copy
 import threading
 from collections import OrderedDict
+from contextlib import contextmanager
 
 import torch
 from torch import fx
 
-__all__ = ["install", "cache_info", "clear"]
+from ._fused import fusable_paths
+
+__all__ = ["install", "cache_info", "clear", "lean_codegen"]
 
 _KEPT = 512          # structures kept per cache (oldest dropped first)
 _LOCK = threading.Lock()
@@ -42,6 +47,7 @@ _GRAPHS: OrderedDict = OrderedDict()
 _MOMENTS: OrderedDict = OrderedDict()
 _COUNTS = {"graph_hits": 0, "graph_misses": 0, "moment_hits": 0, "moment_misses": 0}
 _STATE: dict = {}
+_LEAN = threading.local()
 
 
 def _remember(store: OrderedDict, key, value) -> None:
@@ -88,7 +94,14 @@ def _lookup(key, make):
 
 def _left_right(irreps_in1, irreps_in2, irreps_out, instructions, shared_weights=False,
                 specialized_code=True, optimize_einsums=True):
-    """Tensor-product codegen provider with e3nn's signature, stored per structure."""
+    """Tensor-product codegen provider with e3nn's signature, stored per structure.
+
+    Inside :func:`lean_codegen`, products the fused kernels will evaluate get e3nn's code
+    without the einsum-order search (opt_einsum_fx, most of a cold build): that code is
+    kept only as a working fallback, never on the training path.
+    """
+    if optimize_einsums and getattr(_LEAN, "active", False) and fusable_paths(instructions):
+        optimize_einsums = False
     key = ("tp", str(irreps_in1), str(irreps_in2), str(irreps_out), tuple(instructions),
            bool(shared_weights), bool(specialized_code), bool(optimize_einsums),
            torch.get_default_dtype())
@@ -104,6 +117,18 @@ def _linear(irreps_in, irreps_out, instructions, f_in=None, f_out=None,
            bool(shared_weights), bool(optimize_einsums), torch.get_default_dtype())
     return _lookup(key, lambda: _STATE["linear"](
         irreps_in, irreps_out, instructions, f_in, f_out, shared_weights, optimize_einsums))
+
+
+@contextmanager
+def lean_codegen():
+    """Within the block, tensor products with :func:`fusable_paths` skip einsum
+    optimisation in code generation (``build_model`` with fused kernels)."""
+    previous = getattr(_LEAN, "active", False)
+    _LEAN.active = True
+    try:
+        yield
+    finally:
+        _LEAN.active = previous
 
 
 def _moment(f, n, dtype=None, device=None):

@@ -34,18 +34,22 @@ from collections import OrderedDict
 import torch
 from e3nn import o3
 
-__all__ = ["FusedProduct", "fuse_products", "fusable"]
+__all__ = ["FusedProduct", "fuse_products", "fusable", "fusable_paths"]
 
 _MODES = ("uvw", "uvu")
 
 
+def fusable_paths(instructions) -> bool:
+    """Whether the fused kernel can evaluate these e3nn instructions: at least one live
+    path, and every live path ``uvw``/``uvu`` with weights."""
+    live = [ins for ins in instructions if ins.path_weight != 0 and 0 not in ins.path_shape]
+    return bool(live) and all(ins.connection_mode in _MODES and ins.has_weight for ins in live)
+
+
 def fusable(tp: torch.nn.Module) -> bool:
     """Whether :func:`fuse_products` can switch ``tp``: a plain ``o3.TensorProduct`` or
-    ``FullyConnectedTensorProduct`` whose every live path is ``uvw``/``uvu`` with weights."""
-    if type(tp) not in _FUSED_CLASSES:
-        return False
-    live = [ins for ins in tp.instructions if ins.path_weight != 0 and 0 not in ins.path_shape]
-    return bool(live) and all(ins.connection_mode in _MODES and ins.has_weight for ins in live)
+    ``FullyConnectedTensorProduct`` with :func:`fusable_paths`."""
+    return type(tp) in _FUSED_CLASSES and fusable_paths(tp.instructions)
 
 
 class FusedProduct:

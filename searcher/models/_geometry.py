@@ -174,7 +174,8 @@ class Geometry(torch.nn.Module):
 
 
 def attach_geometry(model: torch.nn.Module, data, *, context: bool = False) -> None:
-    """Cache the model's edge SH and radial basis on ``data`` (see the module docstring).
+    """Cache the model's edge SH and radial basis on ``data`` (see the module docstring);
+    arrays ``data`` already holds for the same :attr:`Geometry.key` are kept.
 
     Args:
         model: a model with ``.geometry``.
@@ -185,7 +186,8 @@ def attach_geometry(model: torch.nn.Module, data, *, context: bool = False) -> N
     """
     geometry = model.geometry
     with torch.no_grad():
-        data.edge_sh, data.edge_rbf = geometry.compute(data.edge_vec)
+        # Geometry the graphs already carry (the trainer's on-disk store) is reused.
+        data.edge_sh, data.edge_rbf = geometry.cached(data) or geometry.compute(data.edge_vec)
         data.edge_geometry = geometry.key
         if context:
             data.edge_context = (geometry.context_key, geometry(data))

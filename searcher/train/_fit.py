@@ -26,6 +26,7 @@ import torch
 from ._batches import TrainBatches, collate
 from ._checkpoint import save_weights
 from ._fidelity import fidelity_graphs
+from ._geometry_store import with_geometry
 from ._metrics import predict_errors
 from ._schedule import Schedule, make_optimiser
 
@@ -110,6 +111,8 @@ def fit(model: torch.nn.Module, dataset, config: dict, *,
     model.to(device)
     gen = torch.Generator().manual_seed(int(training["seed"]))
     train_graphs, val_graphs = fidelity_graphs(dataset, config, full=full_fidelity)
+    both = with_geometry(model, dataset, config, train_graphs + val_graphs, full=full_fidelity)
+    train_graphs, val_graphs = both[:len(train_graphs)], both[len(train_graphs):]
     batches = TrainBatches(model, train_graphs, int(training["batch_size"]), gen, device)
     val_batches = collate(model, val_graphs, _VAL_BATCH * int(training["batch_size"]),
                           device=device)
