@@ -6,7 +6,7 @@ import torch
 from ._base import FAMILIES
 # Importing the family modules fills the registry.
 from . import _baselines, _gated, _steerable  # noqa: F401
-from ._build_cache import install, lean_codegen
+from ._build_cache import install, lean_codegen, unfused
 from ._fused import fuse_products
 
 install()  # e3nn's structure-only set-up is generated once per process (see _build_cache)
@@ -51,4 +51,9 @@ def build_model(model_cfg: dict, fields: dict, target: str, *,
     with lean_codegen():
         model = FAMILIES.get(model_cfg["family"])(model_cfg, fields, target, stats)
     fuse_products(model)
+    # A product class the fused kernel does not take would be left without e3nn code.
+    left = [name for name, m in model.named_modules() if unfused(m) and not hasattr(
+        model.get_submodule(name.rpartition(".")[0]), "_fused")]
+    if left:
+        raise RuntimeError(f"products built without e3nn code were not fused: {left}")
     return model

@@ -23,8 +23,8 @@ trials redraw the same irreps), so both results are kept per structure:
 
 Both give bit-identical modules to a build without them (tests compare the outputs), so
 results stay deterministic for a given seed.  Within :func:`lean_codegen` (fused builds),
-products the fused kernels will run are generated without the einsum-order search; their
-buffers and state dict are the same, only the unused fallback code is plainer. :func:`install` is idempotent and runs when
+products the fused kernels will run get a stand-in with e3nn's buffers and no code
+(:func:`_unfused_module`): their state dict is the same, nothing of e3nn's is generated. :func:`install` is idempotent and runs when
 ``searcher.models`` is imported.
 """
 from __future__ import annotations
@@ -39,7 +39,7 @@ from torch import fx
 
 from ._fused import fusable_paths
 
-__all__ = ["install", "cache_info", "clear", "lean_codegen"]
+__all__ = ["install", "cache_info", "clear", "lean_codegen", "unfused"]
 
 _KEPT = 512          # structures kept per cache (oldest dropped first)
 _LOCK = threading.Lock()
@@ -96,12 +96,14 @@ def _left_right(irreps_in1, irreps_in2, irreps_out, instructions, shared_weights
                 specialized_code=True, optimize_einsums=True):
     """Tensor-product codegen provider with e3nn's signature, stored per structure.
 
-    Inside :func:`lean_codegen`, products the fused kernels will evaluate get e3nn's code
-    without the einsum-order search (opt_einsum_fx, most of a cold build): that code is
-    kept only as a working fallback, never on the training path.
+    Inside :func:`lean_codegen`, products the fused kernels will evaluate get no generated
+    code at all (:func:`_unfused_module`: e3nn's Wigner 3j buffers, a forward that raises).
     """
-    if optimize_einsums and getattr(_LEAN, "active", False) and fusable_paths(instructions):
-        optimize_einsums = False
+    if getattr(_LEAN, "active", False) and fusable_paths(instructions):
+        key = ("unfused", str(irreps_in1), str(irreps_in2), str(irreps_out),
+               tuple(instructions), bool(specialized_code), torch.get_default_dtype())
+        return _lookup(key, lambda: _unfused_module(irreps_in1, irreps_in2, irreps_out,
+                                                    instructions, specialized_code))
     key = ("tp", str(irreps_in1), str(irreps_in2), str(irreps_out), tuple(instructions),
            bool(shared_weights), bool(specialized_code), bool(optimize_einsums),
            torch.get_default_dtype())
@@ -119,10 +121,52 @@ def _linear(irreps_in, irreps_out, instructions, f_in=None, f_out=None,
         irreps_in, irreps_out, instructions, f_in, f_out, shared_weights, optimize_einsums))
 
 
+def _not_generated(x1, x2, w):
+    if isinstance(x1, fx.Proxy):
+        # Unpickling a graph module re-traces its code: record this call again, don't make it.
+        return x1.tracer.create_proxy("call_function", _not_generated, (x1, x2, w), {})
+    raise RuntimeError("this tensor product was built for the fused kernel "
+                       "(searcher.models._fused) and has no e3nn code; build the model with "
+                       "kernels='e3nn' to run e3nn's")
+
+
+def _unfused_module(irreps_in1, irreps_in2, irreps_out, instructions,
+                    specialized_code) -> fx.GraphModule:
+    """A stand-in for e3nn's generated module of a product the fused kernel runs.
+
+    It registers exactly the Wigner 3j buffers e3nn's code generation would (for ``uvw`` /
+    ``uvu`` paths with weights, every path unless ``specialized_code`` handles it without
+    one, i.e. when an order is 0), so state dicts match a plain e3nn build key for key; its
+    forward raises.  Building it skips e3nn's fx tracing and einsum-order search, the bulk
+    of a cold build.
+    """
+    from e3nn import o3
+
+    graph = fx.Graph()
+    args = tuple(graph.placeholder(name, torch.Tensor) for name in ("x1", "x2", "w"))
+    graph.output(graph.call_function(_not_generated, args))
+    module = fx.GraphModule(torch.nn.Module(), graph, class_name="tp_forward")
+    for ins in instructions:
+        parts = (irreps_in1[ins.i_in1], irreps_in2[ins.i_in2], irreps_out[ins.i_out])
+        if 0 in ins.path_shape or any(p.dim == 0 for p in parts):
+            continue
+        ls = tuple(p.ir.l for p in parts)
+        name = "_w3j_{}_{}_{}".format(*ls)
+        if not (specialized_code and 0 in ls) and name not in module._buffers:
+            module.register_buffer(name, o3.wigner_3j(*ls))
+    module.searcher_unfused = True
+    return module
+
+
+def unfused(module: torch.nn.Module) -> bool:
+    """Whether ``module`` is a stand-in made by :func:`_unfused_module`."""
+    return bool(getattr(module, "searcher_unfused", False))
+
+
 @contextmanager
 def lean_codegen():
-    """Within the block, tensor products with :func:`fusable_paths` skip einsum
-    optimisation in code generation (``build_model`` with fused kernels)."""
+    """Within the block, tensor products with :func:`fusable_paths` get no generated code
+    (``build_model`` with fused kernels switches every one of them to the fused kernel)."""
     previous = getattr(_LEAN, "active", False)
     _LEAN.active = True
     try:

@@ -168,3 +168,19 @@ def test_fused_models_copy_and_pickle():
         kinds = [type(m).__name__ for m in other.modules() if "Fused" in type(m).__name__]
         assert kinds == [type(m).__name__ for m in model.modules()
                          if "Fused" in type(m).__name__] and kinds
+
+
+def test_products_built_for_the_fused_kernel_carry_no_e3nn_code():
+    # A fused build skips e3nn's code generation for the products it switches; their
+    # stand-in (with e3nn's buffers, so state dicts match) refuses to run, also after a
+    # pickle round trip, instead of computing anything.
+    cfg = model_config({"family": "steerable", "hidden.multiplicity": 2, "hidden.lmax": 1,
+                        "layers": 1, "radial.count": 4, "width": 6})
+    model = build_model(cfg, FIELDS, "anisotropy")
+    tp = next(m for m in model.modules() if hasattr(m, "_fused"))
+    stand_in = tp._compiled_main_left_right
+    x1, x2 = torch.randn(3, tp.irreps_in1.dim), torch.randn(3, tp.irreps_in2.dim)
+    for module in (stand_in, pickle.loads(pickle.dumps(stand_in))):
+        with pytest.raises(RuntimeError, match="fused kernel"):
+            module(x1, x2, tp.weight)
+    assert tp(x1, x2).shape == (3, tp.irreps_out.dim)
