@@ -151,7 +151,8 @@ class FusedProduct:
                 self.blocks.append(("uvu", torch.tensor(oc), torch.tensor(yc),
                                     torch.tensor(wi), torch.tensor(cf, dtype=torch.float64),
                                     mul_o * ir_o.dim, direct))
-        self.perm = torch.tensor(perm)
+        # None when the groups already lie in x1 in order (sorted, simplified irreps).
+        self.perm = None if perm == list(range(self.dim1)) else torch.tensor(perm)
         self.split1 = [rows * c.shape[1] // width for c, rows, width in self.groups]
         # One gather of Y feeds every output block (each gather's backward fills a Y-sized
         # zero tensor, so one gather a product, not one a block).
@@ -171,7 +172,8 @@ class FusedProduct:
             groups = [(conv(m), r, k) for m, r, k in self.groups]
             blocks = [tuple(conv(x) if isinstance(x, torch.Tensor) else x for x in b)
                       for b in self.blocks]
-            self._cast[key] = (groups, blocks, conv(self.perm), conv(self.gather))
+            perm = None if self.perm is None else conv(self.perm)
+            self._cast[key] = (groups, blocks, perm, conv(self.gather))
         return self._cast[key]
 
     def __call__(self, x1: torch.Tensor, x2: torch.Tensor, weight: torch.Tensor) -> torch.Tensor:
@@ -183,7 +185,7 @@ class FusedProduct:
         if not self.shared:
             weight = weight.expand(*lead, weight.shape[-1]).reshape(z, -1)
         groups, blocks, perm, gather = self._constants(x1.dtype, x1.device)
-        x1s = x1.index_select(1, perm).split(self.split1, 1)
+        x1s = (x1 if perm is None else x1.index_select(1, perm)).split(self.split1, 1)
         ys = [torch.bmm(x.reshape(z, rows, -1), (x2 @ coupling).reshape(z, -1, width))
               .reshape(z, -1) for x, (coupling, rows, width) in zip(x1s, groups)]
         y = ys[0] if len(ys) == 1 else torch.cat(ys, 1)
