@@ -25,7 +25,7 @@ PLANS = {
               "flop_steps": 5, "scale_trials": 8, "scale_epochs": 4, "overhead_trials": 3,
               "overhead_epochs": 4, "analysis_n": 10_000, "demo": {}},
     "full": {"sizes": (1, 2, 3), "families": ("steerable", "gated"), "epochs": 4, "repeats": 5,
-             "flop_steps": 20, "scale_trials": 12, "scale_epochs": 12, "overhead_trials": 8,
+             "flop_steps": 20, "scale_trials": 24, "scale_epochs": 12, "overhead_trials": 8,
              "overhead_epochs": 6, "analysis_n": 10_000, "demo": {}},
 }
 # figure -> (comparison, goal)
@@ -123,7 +123,8 @@ def _headline(name: str, value) -> tuple[str, float | None]:
         parts = [f"{r['family']} l{r['lmax']} {r['ratio']:.2f}" for r in value]
         return ", ".join(parts), min(r["ratio"] for r in value)
     if name == "flop_utilisation":
-        parts = [f"l{r['lmax']} {r['fraction']:.3f}" for r in value]
+        parts = [f"l{r['lmax']} {r['fraction']:.3f} (e3nn {r['fraction_e3nn']:.3f})"
+                 for r in value]
         return ", ".join(parts), max(r["fraction"] for r in value)
     if name == "worker_scaling":
         return (f"{value['per_hour_2']:.0f} vs {value['per_hour_1']:.0f} trials/h",

@@ -59,7 +59,7 @@ def test_in_process_figures_and_table(tmp_path):
     figs = record["figures"]
     assert set(figs) == {"loop_vs_reference", "flop_utilisation", "analysis_10k"}
     flop = figs["flop_utilisation"][0]
-    assert flop["madds_per_step"] > 0 and 0 < flop["fraction"]
+    assert flop["madds_per_step"] > 0 and 0 < flop["fraction"] and 0 < flop["fraction_e3nn"]
     table = format_table(record)
     for name in figs:
         assert name in table
