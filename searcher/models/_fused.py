@@ -13,11 +13,12 @@ is evaluated in three stages that each cover *every* path at once:
 1. ``T_L = x2 @ C_L`` per input order ``L``: one matmul contracts ``x2`` with the Wigner 3j
    symbols of all paths leaving order ``L`` (``[Z, 2L+1, K_L]``);
 2. ``Y_L = bmm(x1_L, T_L)``: the rows of every ``x1`` block of order ``L`` against it;
-3. ``uvw`` outputs: one gather of ``Y`` columns and one contraction with the gathered, scaled
-   weights per output block; ``uvu`` outputs: one gather of ``Y`` times the gathered weights.
+3. one gather of ``Y`` for all output blocks; then per ``uvw`` block one contraction with the
+   gathered, scaled weights, per ``uvu`` block a product with the gathered weights.
 
-So a product costs about ``2 (lmax+1)`` + 2 per output block ops instead of ~4 per path, with
-arithmetic close to e3nn's.  The constants (3j symbols, indices, path weights ``α``) are made
+So a product costs about ``2 (lmax+1)`` + 1 + 2 per output block ops instead of ~4 per path,
+with arithmetic close to e3nn's.  (A gather's backward zero-fills a gradient the size of its
+source, so one gather a product, not one a block.)  The constants (3j symbols, indices, path weights ``α``) are made
 in float64 from :func:`e3nn.o3.wigner_3j` and cast per dtype on first use, so a model
 converted to float64 (the equivariance gate) computes with exact coefficients; they are not
 buffers, so state dicts are e3nn's own and load into either kernel.
@@ -63,7 +64,7 @@ class FusedProduct:
         in1, in2, out = tp.irreps_in1, tp.irreps_in2, tp.irreps_out
         self.dim1, self.dim2, self.dim_out = in1.dim, in2.dim, out.dim
         self.shared = bool(tp.shared_weights)
-        s1, s2, so = in1.slices(), in2.slices(), out.slices()
+        s1, s2 = in1.slices(), in2.slices()
         offsets, flat = [], 0
         for ins in tp.instructions:
             offsets.append(flat)
@@ -82,6 +83,7 @@ class FusedProduct:
                 if key not in g["kernels"]:
                     g["kernels"][key] = sum(2 * k[2] + 1 for k in g["kernels"])
         self.groups = []          # per L: (C_L [D2, (2L+1) K_L], R_L, K_L)
+        self.split1 = []          # x1 columns per group
         perm = []                 # x1 columns, group after group (one gather for all)
         y_offset = {}
         ytot = 0
@@ -98,6 +100,7 @@ class FusedProduct:
                 coupling[j0:j0 + 2 * l2 + 1, :, k0:k0 + 2 * l3 + 1] = \
                     o3.wigner_3j(l1, l2, l3, dtype=torch.float64).permute(1, 0, 2)
             perm += cols
+            self.split1.append(len(cols))
             self.groups.append((coupling.reshape(self.dim2, -1), rows, width))
             y_offset[l1] = ytot
             ytot += rows * width
@@ -109,8 +112,10 @@ class FusedProduct:
             k0 = g["kernels"][(ins.i_in2, v, out[ins.i_out].ir.l)]
             return y_offset[l1] + (g["rows"][ins.i_in1] + u) * width + k0 + k
 
-        # Stage 3.
+        # Stage 3.  One gather of Y feeds every output block (each gather's backward fills a
+        # Y-sized zero tensor, so one gather a product, not one a block).
         self.blocks = []          # per output block: ("zero", dim) | ("uvw", ...) | ("uvu", ...)
+        gathers = []              # Y columns each non-zero block reads, in block order
         for i_out, (mul_o, ir_o) in enumerate(out):
             mine = [(ins, off) for ins, off in live if ins.i_out == i_out]
             modes = {ins.connection_mode for ins, _ in mine}
@@ -125,10 +130,11 @@ class FusedProduct:
                             rows.append((ins, u, v))
                             widx += [off + (u * m2 + v) * mul_o + w for w in range(mul_o)]
                             coef += [ins.path_weight] * mul_o
-                gather = [ycol(ins, u, v, k) for k in range(ir_o.dim) for ins, u, v in rows]
-                self.blocks.append(("uvw", torch.tensor(gather), torch.tensor(widx),
+                gathers.append([ycol(ins, u, v, k) for k in range(ir_o.dim)
+                                for ins, u, v in rows])
+                self.blocks.append(("uvw", torch.tensor(widx),
                                     torch.tensor(coef, dtype=torch.float64),
-                                    len(gather) // ir_o.dim, mul_o, ir_o.dim))
+                                    len(rows), mul_o, ir_o.dim))
             else:               # uvu (alone or mixed with uvw: summed entry by entry)
                 entries = []    # (out column, Y column, weight index, coefficient)
                 for ins, off in mine:
@@ -148,20 +154,14 @@ class FusedProduct:
                 entries.sort()
                 oc, yc, wi, cf = (list(c) for c in zip(*entries))
                 direct = oc == list(range(mul_o * ir_o.dim))
-                self.blocks.append(("uvu", torch.tensor(oc), torch.tensor(yc),
-                                    torch.tensor(wi), torch.tensor(cf, dtype=torch.float64),
+                gathers.append(yc)
+                self.blocks.append(("uvu", torch.tensor(oc), torch.tensor(wi),
+                                    torch.tensor(cf, dtype=torch.float64),
                                     mul_o * ir_o.dim, direct))
         # None when the groups already lie in x1 in order (sorted, simplified irreps).
         self.perm = None if perm == list(range(self.dim1)) else torch.tensor(perm)
-        self.split1 = [rows * c.shape[1] // width for c, rows, width in self.groups]
-        # One gather of Y feeds every output block (each gather's backward fills a Y-sized
-        # zero tensor, so one gather a product, not one a block).
-        gathers, self.split_y = [], []
-        for b in self.blocks:
-            if b[0] != "zero":
-                gathers.append(b[1] if b[0] == "uvw" else b[2])
-                self.split_y.append(len(b[1] if b[0] == "uvw" else b[2]))
-        self.gather = torch.cat(gathers)
+        self.split_y = [len(g) for g in gathers]
+        self.gather = torch.tensor([c for g in gathers for c in g], dtype=torch.long)
         self._cast: dict = {}
 
     def _constants(self, dtype: torch.dtype, device: torch.device):
@@ -196,13 +196,13 @@ class FusedProduct:
             if kind == "zero":
                 pieces.append(x1.new_zeros(z, block[1]))
             elif kind == "uvw":
-                _, _, widx, coef, rows, mul, dim = block
+                _, widx, coef, rows, mul, dim = block
                 yo = next(parts).reshape(z, dim, rows)
                 w = weight.index_select(-1, widx) * coef
                 w = w.reshape(rows, mul) if self.shared else w.reshape(z, rows, mul)
                 pieces.append(torch.matmul(yo, w).transpose(1, 2).reshape(z, mul * dim))
             else:
-                _, oc, _, wi, cf, dim, direct = block
+                _, oc, wi, cf, dim, direct = block
                 prod = next(parts) * (weight.index_select(-1, wi) * cf)
                 pieces.append(prod if direct else
                               prod.new_zeros(z, dim).index_add_(1, oc, prod))
