@@ -186,8 +186,14 @@ class FusedProduct:
             weight = weight.expand(*lead, weight.shape[-1]).reshape(z, -1)
         groups, blocks, perm, gather = self._constants(x1.dtype, x1.device)
         x1s = (x1 if perm is None else x1.index_select(1, perm)).split(self.split1, 1)
-        ys = [torch.bmm(x.reshape(z, rows, -1), (x2 @ coupling).reshape(z, -1, width))
-              .reshape(z, -1) for x, (coupling, rows, width) in zip(x1s, groups)]
+        ys = []
+        for x, (coupling, rows, width) in zip(x1s, groups):
+            t = x2 @ coupling
+            if t.shape[1] == width:  # scalars (2L+1 = 1): an outer product, not a bmm
+                ys.append((x[:, :, None] * t[:, None, :]).reshape(z, -1))
+            else:
+                ys.append(torch.bmm(x.reshape(z, rows, -1), t.reshape(z, -1, width))
+                          .reshape(z, -1))
         y = ys[0] if len(ys) == 1 else torch.cat(ys, 1)
         parts = iter(y.index_select(1, gather).split(self.split_y, 1))
         pieces = []
