@@ -23,9 +23,11 @@ in float64 from :func:`e3nn.o3.wigner_3j` and cast per dtype on first use, so a 
 converted to float64 (the equivariance gate) computes with exact coefficients; they are not
 buffers, so state dicts are e3nn's own and load into either kernel.
 
-:func:`fuse_products` switches every supported product of a model in place (its class becomes
+:func:`fuse_products` switches every supported product (and every shared, bias-free
+``o3.Linear``, :class:`FusedLinear`) of a model in place (its class becomes
 a subclass that overrides ``forward`` only); unsupported modes (``uuu``, ``uvv``, ...),
-products without weights on a path, or with non-trivial batch broadcasting keep e3nn's code.
+products without weights on a path and linears with biases or external weights keep e3nn's
+code.
 """
 from __future__ import annotations
 
@@ -35,7 +37,7 @@ from collections import OrderedDict
 import torch
 from e3nn import o3
 
-__all__ = ["FusedProduct", "fuse_products", "fusable", "fusable_paths"]
+__all__ = ["FusedProduct", "FusedLinear", "fuse_products", "fusable", "fusable_paths"]
 
 _MODES = ("uvw", "uvu")
 
@@ -216,6 +218,53 @@ class FusedProduct:
         return out.reshape(*lead, self.dim_out)
 
 
+class FusedLinear(o3.Linear):
+    """An ``o3.Linear`` evaluated as one matmul with a block matrix built from its weights.
+
+    e3nn runs one einsum per instruction; here ``W[(u, i), (w, i)] = α W_ins[u, w]`` is
+    gathered from the flat weight vector each call (a tiny tensor) and applied at once.
+    """
+
+    def forward(self, features, weight=None, bias=None):
+        weight = self.weight if weight is None else weight
+        pos, widx, coef = self._fused_linear
+        if pos.device != features.device:
+            pos, widx = pos.to(features.device), widx.to(features.device)
+        coef = coef.to(device=features.device, dtype=features.dtype)
+        dim_in, dim_out = self.irreps_in.dim, self.irreps_out.dim
+        dense = features.new_zeros(dim_in * dim_out).index_copy(
+            0, pos, weight.index_select(0, widx) * coef).reshape(dim_in, dim_out)
+        return features @ dense
+
+
+def _linear_plan(lin: o3.Linear):
+    """(dense positions, weight indices, coefficients) of a shared, bias-free linear."""
+    pos, widx, coef, off = [], [], [], 0
+    s_in, s_out = lin.irreps_in.slices(), lin.irreps_out.slices()
+    dim_out = lin.irreps_out.dim
+    for ins in lin.instructions:
+        mul_in, mul_out = ins.path_shape
+        d = lin.irreps_in[ins.i_in].ir.dim
+        for u in range(mul_in):
+            for w in range(mul_out):
+                for i in range(d):
+                    pos.append((s_in[ins.i_in].start + u * d + i) * dim_out
+                               + s_out[ins.i_out].start + w * d + i)
+                    widx.append(off + u * mul_out + w)
+                    coef.append(ins.path_weight)
+        off += mul_in * mul_out
+    if len(set(pos)) != len(pos):
+        return None
+    return (torch.tensor(pos, dtype=torch.long), torch.tensor(widx, dtype=torch.long),
+            torch.tensor(coef, dtype=torch.float64))
+
+
+def _linear_fusable(lin) -> bool:
+    return (type(lin) is o3.Linear and lin.internal_weights and lin.shared_weights
+            and lin.bias_numel == 0 and lin.weight_numel > 0 and lin.weight.dim() == 1
+            and all(ins.i_in >= 0 for ins in lin.instructions))
+
+
 class _FusedMixin:
     """``forward`` through the product's :class:`FusedProduct` (same weights, same math)."""
 
@@ -238,13 +287,14 @@ _FUSED_CLASSES = {o3.TensorProduct: FusedTensorProduct,
 
 
 def fuse_products(model: torch.nn.Module) -> int:
-    """Switch every :func:`fusable` tensor product of ``model`` to the fused kernel, in place.
+    """Switch every :func:`fusable` tensor product of ``model`` to the fused kernel, and
+    every shared, bias-free ``o3.Linear`` to :class:`FusedLinear`, in place.
 
     Parameters, buffers and state-dict keys are unchanged, so a state dict moves freely
     between a fused model and e3nn's; the plans are kept per structure.
 
     Returns:
-        How many products were switched.
+        How many modules were switched.
     """
     count = 0
     for module in model.modules():
@@ -252,6 +302,12 @@ def fuse_products(model: torch.nn.Module) -> int:
             module._fused = _plan(module)
             module.__class__ = _FUSED_CLASSES[type(module)]
             count += 1
+        elif _linear_fusable(module):
+            plan = _linear_plan(module)
+            if plan is not None:
+                module._fused_linear = plan
+                module.__class__ = FusedLinear
+                count += 1
     return count
 
 

@@ -11,7 +11,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from searcher.models import build_model, default_dtype, random_graph
-from searcher.models._fused import FusedProduct, fuse_products, fusable
+from searcher.models._fused import FusedLinear, FusedProduct, fuse_products, fusable
 from searcher.testing import make_fields, model_config
 
 FIELDS = make_fields()
@@ -108,6 +108,35 @@ def test_fused_matches_e3nn_on_random_structures(muls, l2max, outs):
     torch.testing.assert_close(got, ref, rtol=0, atol=1e-12)
     for g, rg in zip(grads, ref_grads):
         torch.testing.assert_close(g, rg, rtol=0, atol=1e-11)
+
+
+@pytest.mark.parametrize("irreps_in, irreps_out", [
+    ("3x0e+3x1o+3x2e", "3x0e+3x1o+3x2e"),            # the gated family's mixer
+    ("3x0e+2x1o+2x1o+1x2e", "4x0e+6x0e+3x1o"),       # repeated blocks, gate input
+    ("2x0e", "3x0e+2x1o"),                           # an output no path reaches
+])
+def test_fused_linear_matches_e3nn(irreps_in, irreps_out):
+    # Reference: e3nn 0.6's o3.Linear (its generated einsum code) on the same weights.
+    torch.manual_seed(2)
+    with default_dtype(torch.float64):
+        lin = o3.Linear(irreps_in, irreps_out)
+    fused = copy.deepcopy(lin)
+    assert fuse_products(fused) == 1 and type(fused) is FusedLinear
+    x = torch.randn(6, lin.irreps_in.dim, dtype=torch.float64)
+    results = []
+    for module in (lin, fused):
+        a = x.clone().requires_grad_()
+        out = module(a)
+        results.append((out, torch.autograd.grad(out.pow(3).sum(), [a, module.weight])))
+    (ref, ref_grads), (got, grads) = results
+    torch.testing.assert_close(got, ref, rtol=0, atol=1e-12)
+    for g, rg in zip(grads, ref_grads):
+        torch.testing.assert_close(g, rg, rtol=0, atol=1e-11)
+
+
+def test_linears_with_biases_keep_e3nn_code():
+    lin = o3.Linear("2x0e+1x1o", "2x0e+1x1o", biases=True)
+    assert fuse_products(lin) == 0 and type(lin) is o3.Linear
 
 
 def test_unsupported_products_keep_e3nn_code():
