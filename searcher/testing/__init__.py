@@ -5,7 +5,7 @@ seeding, and the tiny study document the search tests write.
 the gate uses; ``random_graph`` is the models' probe-graph builder.
 """
 from searcher.testing._helpers import assert_gate, make_fields, model_config, random_graph, seeded
-from searcher.testing._studies import tiny_study_doc
+from searcher.testing._studies import tiny_fit_config, tiny_study_doc
 
 __all__ = ["assert_gate", "make_fields", "model_config", "random_graph", "seeded",
-           "tiny_study_doc"]
+           "tiny_fit_config", "tiny_study_doc"]

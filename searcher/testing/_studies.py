@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import copy
 
-__all__ = ["tiny_study_doc"]
+__all__ = ["tiny_study_doc", "tiny_fit_config"]
 
 # 8 graphs of 10 probes, multiplicity 2, one layer, 4 epochs: a trial trains in well under a
 # second on one CPU thread, so tests can run real searches.
@@ -47,3 +47,17 @@ def tiny_study_doc(**overrides) -> dict:
         doc["training"]["epochs"]                              # 4
     """
     return _merge(_TINY, overrides)
+
+
+def tiny_fit_config(*, seed: int = 3, epochs: int = 4) -> dict:
+    """A resolved config (``defaults.yaml``) with the tiny study's fixed task, model and
+    training sizes, for tests that call ``fit`` directly; ``seed`` seeds the demo data."""
+    from searcher.spec import defaults
+
+    cfg = defaults()
+    for section in ("task", "model", "training"):
+        fixed = {k: v for k, v in _TINY[section].items() if k != "learning_rate"}
+        cfg[section] = _merge(cfg[section], fixed)
+    cfg["task"]["demo"]["seed"] = int(seed)
+    cfg["training"]["epochs"] = int(epochs)
+    return cfg

@@ -10,21 +10,14 @@ from scipy.spatial import cKDTree
 
 from searcher.data import build_dataset
 from searcher.models import build_model
-from searcher.spec import defaults
+from searcher.testing import tiny_fit_config
 from searcher.train import (BlockErrors, Schedule, evaluate, fidelity_graphs, fit, load_weights,
                             save_weights, target_blocks)
 
 
 @pytest.fixture(scope="module")
 def setup(tmp_path_factory):
-    cfg = defaults()
-    cfg["task"]["demo"].update(samples=8, probes=10, seed=3)
-    cfg["task"]["graph"].update(rule="neighbours", neighbours=4)
-    cfg["task"]["split"].update(fractions=[0.5, 0.25, 0.25], hold_out=[], stress=[])
-    cfg["model"].update(family="gated", layers=1, width=8, node_inputs=["velocity"])
-    cfg["model"]["hidden"].update(lmax=1, multiplicity=2)
-    cfg["model"]["radial"].update(count=4)
-    cfg["training"].update(epochs=3, batch_size=2)
+    cfg = tiny_fit_config(seed=3, epochs=3)
     data = build_dataset(cfg["task"], cache_dir=tmp_path_factory.mktemp("cache"))
     return cfg, data
 

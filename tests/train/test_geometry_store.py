@@ -10,21 +10,14 @@ from e3nn import o3
 
 from searcher.data import build_dataset
 from searcher.models import build_model
-from searcher.spec import defaults
+from searcher.testing import tiny_fit_config
 from searcher.train import fidelity_graphs, fit
 from searcher.train import _geometry_store as store
 
 
 @pytest.fixture(scope="module")
 def setup(tmp_path_factory):
-    cfg = defaults()
-    cfg["task"]["demo"].update(samples=8, probes=10, seed=5)
-    cfg["task"]["graph"].update(rule="neighbours", neighbours=4)
-    cfg["task"]["split"].update(fractions=[0.5, 0.25, 0.25], hold_out=[], stress=[])
-    cfg["model"].update(family="gated", layers=1, width=8, node_inputs=["velocity"])
-    cfg["model"]["hidden"].update(lmax=1, multiplicity=2)
-    cfg["model"]["radial"].update(count=4)
-    cfg["training"].update(epochs=2, batch_size=2)
+    cfg = tiny_fit_config(seed=5, epochs=2)
     return cfg, build_dataset(cfg["task"], cache_dir=tmp_path_factory.mktemp("cache"))
 
 
