@@ -24,8 +24,9 @@ trials redraw the same irreps), so both results are kept per structure:
 Both give bit-identical modules to a build without them (tests compare the outputs), so
 results stay deterministic for a given seed.  Within :func:`lean_codegen` (fused builds),
 products the fused kernels will run get a stand-in with e3nn's buffers and no code
-(:func:`_unfused_module`): their state dict is the same, nothing of e3nn's is generated. :func:`install` is idempotent and runs when
-``searcher.models`` is imported.
+(:func:`_unfused_module`): their state dict is the same, nothing of e3nn's is generated.
+The fused kernels' plans are kept here too (:func:`stored_plan`).  :func:`install` is
+idempotent and runs when ``searcher.models`` is imported.
 """
 from __future__ import annotations
 
@@ -39,12 +40,13 @@ from torch import fx
 
 from ._fused import fusable_paths
 
-__all__ = ["install", "cache_info", "clear", "lean_codegen", "unfused"]
+__all__ = ["install", "cache_info", "clear", "lean_codegen", "unfused", "stored_plan"]
 
 _KEPT = 512          # structures kept per cache (oldest dropped first)
 _LOCK = threading.Lock()
 _GRAPHS: OrderedDict = OrderedDict()
 _MOMENTS: OrderedDict = OrderedDict()
+_PLANS: OrderedDict = OrderedDict()
 _COUNTS = {"graph_hits": 0, "graph_misses": 0, "moment_hits": 0, "moment_misses": 0}
 _STATE: dict = {}
 _LEAN = threading.local()
@@ -119,6 +121,20 @@ def _linear(irreps_in, irreps_out, instructions, f_in=None, f_out=None,
            bool(shared_weights), bool(optimize_einsums), torch.get_default_dtype())
     return _lookup(key, lambda: _STATE["linear"](
         irreps_in, irreps_out, instructions, f_in, f_out, shared_weights, optimize_einsums))
+
+
+def stored_plan(key, make):
+    """The fused-kernel plan of structure ``key`` (``make()`` on a miss); plans hold only
+    constants, so every module of that structure shares one."""
+    with _LOCK:
+        plan = _PLANS.get(key)
+        if plan is not None:
+            _PLANS.move_to_end(key)
+            return plan
+    plan = make()
+    with _LOCK:
+        _remember(_PLANS, key, plan)
+    return plan
 
 
 def _not_generated(x1, x2, w):
@@ -215,7 +231,8 @@ def install() -> None:
 def cache_info() -> dict:
     """Hits and misses of both caches since the process started (or :func:`clear`)."""
     with _LOCK:
-        return {**_COUNTS, "graphs": len(_GRAPHS), "moments": len(_MOMENTS)}
+        return {**_COUNTS, "graphs": len(_GRAPHS), "moments": len(_MOMENTS),
+                "plans": len(_PLANS)}
 
 
 def clear() -> None:
@@ -223,5 +240,6 @@ def clear() -> None:
     with _LOCK:
         _GRAPHS.clear()
         _MOMENTS.clear()
+        _PLANS.clear()
         for key in _COUNTS:
             _COUNTS[key] = 0

@@ -18,8 +18,10 @@ is evaluated in three stages that each cover *every* path at once:
 
 So a product costs about ``2 (lmax+1)`` + 1 + 2 per output block ops instead of ~4 per path,
 with arithmetic close to e3nn's.  (A gather's backward zero-fills a gradient the size of its
-source, so one gather a product, not one a block.)  The constants (3j symbols, indices, path weights ``α``) are made
-in float64 from :func:`e3nn.o3.wigner_3j` and cast per dtype on first use, so a model
+source, so one gather a product, not one a block.)
+
+The constants (3j symbols, indices, path weights ``α``) are made in float64 from
+:func:`e3nn.o3.wigner_3j` and cast per dtype on first use, so a model
 converted to float64 (the equivariance gate) computes with exact coefficients; they are not
 buffers, so state dicts are e3nn's own and load into either kernel.
 
@@ -77,13 +79,15 @@ class FusedProduct:
         groups: OrderedDict = OrderedDict()
         for ins, _ in live:
             l1 = in1[ins.i_in1].ir.l
-            g = groups.setdefault(l1, {"rows": OrderedDict(), "kernels": OrderedDict()})
+            g = groups.setdefault(l1, {"rows": OrderedDict(), "kernels": OrderedDict(),
+                                       "width": 0})
             if ins.i_in1 not in g["rows"]:
                 g["rows"][ins.i_in1] = sum(in1[b].mul for b in g["rows"])
             for v in range(in2[ins.i_in2].mul):
                 key = (ins.i_in2, v, out[ins.i_out].ir.l)
                 if key not in g["kernels"]:
-                    g["kernels"][key] = sum(2 * k[2] + 1 for k in g["kernels"])
+                    g["kernels"][key] = g["width"]
+                    g["width"] += 2 * key[2] + 1
         self.groups = []          # per L: (C_L [D2, (2L+1) K_L], R_L, K_L)
         self.split1 = []          # x1 columns per group
         perm = []                 # x1 columns, group after group (one gather for all)
@@ -93,8 +97,7 @@ class FusedProduct:
             d1 = 2 * l1 + 1
             cols = [s1[b].start + u * d1 + i for b in g["rows"] for u in range(in1[b].mul)
                     for i in range(d1)]
-            rows = sum(in1[b].mul for b in g["rows"])
-            width = sum(2 * k[2] + 1 for k in g["kernels"])
+            rows, width = sum(in1[b].mul for b in g["rows"]), g["width"]
             coupling = torch.zeros(self.dim2, d1, width, dtype=torch.float64)
             for (b2, v, l3), k0 in g["kernels"].items():
                 l2 = in2[b2].ir.l
@@ -110,9 +113,8 @@ class FusedProduct:
         def ycol(ins, u, v, k):
             l1 = in1[ins.i_in1].ir.l
             g = groups[l1]
-            width = sum(2 * kk[2] + 1 for kk in g["kernels"])
             k0 = g["kernels"][(ins.i_in2, v, out[ins.i_out].ir.l)]
-            return y_offset[l1] + (g["rows"][ins.i_in1] + u) * width + k0 + k
+            return y_offset[l1] + (g["rows"][ins.i_in1] + u) * g["width"] + k0 + k
 
         # Stage 3.  One gather of Y feeds every output block (each gather's backward fills a
         # Y-sized zero tensor, so one gather a product, not one a block).
@@ -311,16 +313,9 @@ def fuse_products(model: torch.nn.Module) -> int:
     return count
 
 
-_PLANS: OrderedDict = OrderedDict()
-_KEPT = 512
-
-
 def _plan(tp: o3.TensorProduct) -> FusedProduct:
+    from ._build_cache import stored_plan  # not at the top: _build_cache imports this module
+
     key = (str(tp.irreps_in1), str(tp.irreps_in2), str(tp.irreps_out),
            tuple(tp.instructions), bool(tp.shared_weights))
-    plan = _PLANS.get(key)
-    if plan is None:
-        plan = _PLANS[key] = FusedProduct(tp)
-        while len(_PLANS) > _KEPT:
-            _PLANS.popitem(last=False)
-    return plan
+    return stored_plan(key, lambda: FusedProduct(tp))

@@ -45,8 +45,7 @@ def geometry_key(dataset, config: dict, geometry, dtype: torch.dtype, full: bool
     return hashlib.sha256(text.encode()).hexdigest()[:20]
 
 
-def _compute(geometry, graphs: list) -> dict:
-    counts = [int(g.edge_vec.shape[0]) for g in graphs]
+def _compute(geometry, graphs: list, counts: list[int]) -> dict:
     with torch.no_grad():
         sh, rbf = geometry.compute(torch.cat([g.edge_vec for g in graphs]))
     return {"counts": counts, "edge_sh": sh.contiguous(), "edge_rbf": rbf.contiguous()}
@@ -100,7 +99,7 @@ def with_geometry(model: torch.nn.Module, dataset, config: dict, graphs: list, *
         path = Path(folder) / f"geometry-{key}.pt" if folder is not None else None
         arrays = _load(path, counts) if path is not None and path.exists() else None
         if arrays is None:
-            arrays = _compute(geometry, graphs)
+            arrays = _compute(geometry, graphs, counts)
             if path is not None:
                 _save(path, arrays)
         with _LOCK:

@@ -89,7 +89,8 @@ def test_a_stale_file_is_recomputed(setup):
     torch.save({"counts": [1, 2, 3], "edge_sh": torch.zeros(6, 9),
                 "edge_rbf": torch.zeros(6, 4)}, path)
     graphs = store.with_geometry(model, data, cfg, train + val)
-    assert torch.load(path, weights_only=True)["counts"] == [g.edge_vec.shape[0] for g in train + val]
+    counts = [g.edge_vec.shape[0] for g in train + val]
+    assert torch.load(path, weights_only=True)["counts"] == counts
     assert graphs[0].edge_sh.abs().sum() > 0
     path.write_bytes(b"not a torch file")
     store._MEMORY.clear()
