@@ -8,8 +8,8 @@ Example:
     >>> sorted(describe_fields(task))
     ['anisotropy', 'pressure', 'pressure_gradient', 'strain_rate', 'velocity', 'vorticity']
 """
-from searcher.data._closure import (linear_anisotropy, make_realizable, pope_terms,
-                                    strain_rotation, szl_anisotropy, time_scale)
+from searcher.data._closure import (closure_anisotropy, linear_anisotropy, make_realizable,
+                                    pope_terms, strain_rotation, szl_anisotropy, time_scale)
 from searcher.data._dataset import (GENERATOR_VERSION, Dataset, build_dataset, data_hash,
                                     describe_fields)
 from searcher.data._demo import (DEMO_FIELDS, Placement, Sample, demo_sample, demo_samples,
@@ -23,7 +23,7 @@ from searcher.data._normaliser import Normaliser
 from searcher.data._splits import split_samples, stress_sets, transform_sample
 
 __all__ = [
-    "DEMO_FIELDS", "Dataset", "FAMILIES", "FIELD_KINDS", "Field", "GENERATOR_VERSION",
+    "DEMO_FIELDS", "Dataset", "FAMILIES", "closure_anisotropy", "FIELD_KINDS", "Field", "GENERATOR_VERSION",
     "Normaliser", "Placement", "SUFFIXES", "Sample", "build_dataset",
     "build_edges", "data_files", "data_hash", "declared_fields", "demo_sample", "demo_samples",
     "describe_fields", "draw_params", "evaluate_flow", "graph_stats", "irreps_dim",

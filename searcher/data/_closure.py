@@ -18,9 +18,14 @@ bound.  The rule bounds ``s̄ = τs`` and ``w̄ = τw`` by ``c_τ``, which keeps
 bounded and frame independent (it only uses invariants), and makes ``b`` a smooth function of
 the local ``S`` and ``Ω`` (``b = 0`` where the gradient vanishes).
 
-Model: Shih, Zhu & Lumley 1993 (NASA TM 105993) as summarised in REFERENCES.md:
-``C_μ = (2/3)/(1.25 + s̄ + 0.9 w̄)`` and
-``b = −C_μ Ŝ + [3 (Ŝ² − ⅓ tr Ŝ² I) + 15 (ŜΩ̂ − Ω̂Ŝ) + 19 (Ω̂² − ⅓ tr Ω̂² I)] / (1000 + s̄³)``.
+Model: Shih, Zhu & Lumley 1993 (NASA TM 105993), the quadratic model with the defaults that
+also ship in OpenFOAM's ``ShihQuadraticKE`` (which writes the gradient transposed, so its
+rotation tensor is ``−Ω``); REFERENCES.md gives the signs:
+``s̄ = √(2 Ŝ:Ŝ)``, ``w̄ = √(2 Ω̂:Ω̂)``, ``C_μ = (2/3)/(1.25 + s̄ + 0.9 w̄)`` and
+``b = −C_μ Ŝ + [3 dev(Ŝ²) − 15 (ŜΩ̂ − Ω̂Ŝ) − 19 dev(Ω̂²)] / (2 (1000 + s̄³))``
+(``dev A = A − ⅓ tr(A) I``).  In simple shear ``u = (γy, 0, 0)`` the quadratic part orders the
+normal stresses ``b11 > b33 > b22``, the order measured in homogeneous shear (Tavoularis &
+Corrsin 1981).
 
 Realizability: ``b`` is symmetric and traceless by construction; its eigenvalues must lie in
 ``[−1/3, 2/3]`` (Schumann 1977).  The C_μ bound keeps the linear part inside (its eigenvalues
@@ -32,11 +37,15 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["strain_rotation", "time_scale", "pope_terms", "linear_anisotropy",
-           "szl_anisotropy", "make_realizable", "C_TAU"]
+           "szl_anisotropy", "closure_anisotropy", "make_realizable", "C_TAU",
+           "SZL_COEFFICIENTS"]
 
 C_TAU = 3.33
 OMEGA0 = 2.0
 _EYE = np.eye(3)
+# (c1, c2, c3) of the quadratic part (c1 T3 + c2 T2 + c3 T4) / (2 (A + s̄³)), as published.
+SZL_COEFFICIENTS = (3.0, -15.0, -19.0)
+_SZL_A = 1000.0
 
 
 def strain_rotation(grad: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -71,24 +80,48 @@ def linear_anisotropy(s_hat: np.ndarray, c_mu=0.09) -> np.ndarray:
     return -np.asarray(c_mu)[..., None, None] * s_hat
 
 
-def szl_anisotropy(grad: np.ndarray) -> np.ndarray:
+def szl_anisotropy(grad: np.ndarray, tau: np.ndarray | None = None) -> np.ndarray:
     """Shih–Zhu–Lumley quadratic anisotropy from the local velocity gradient.
 
     Args:
         grad: ``G [..., 3, 3]`` with ``G_ij = ∂u_i/∂x_j``.
+        tau: turbulence time scale ``k/ε [...]``; None = the demo's rule :func:`time_scale`.
 
     Shapes:
         returns ``b [..., 3, 3]`` (before the realizability scaling).
+
+    Example:
+        >>> g = np.zeros((1, 3, 3)); g[0, 0, 1] = 1.0    # simple shear, τ = 1
+        >>> b = szl_anisotropy(g, np.ones(1))[0]
+        >>> bool(b[0, 0] > b[2, 2] > b[1, 1]) and bool(b[0, 1] < 0)
+        True
     """
     strain, rotation = strain_rotation(np.asarray(grad, dtype=np.float64))
-    tau = time_scale(strain, rotation)[..., None, None]
+    if tau is None:
+        tau = time_scale(strain, rotation)
+    tau = np.asarray(tau, dtype=np.float64)[..., None, None]
     s_hat, w_hat = tau * strain, tau * rotation
     s_bar = np.sqrt(2 * np.einsum("...ij,...ij->...", s_hat, s_hat))
     w_bar = np.sqrt(2 * np.einsum("...ij,...ij->...", w_hat, w_hat))
     c_mu = (2 / 3) / (1.25 + s_bar + 0.9 * w_bar)
     t = pope_terms(s_hat, w_hat)
-    quad = (3 * t[..., 2, :, :] + 15 * t[..., 1, :, :] + 19 * t[..., 3, :, :])
-    return linear_anisotropy(s_hat, c_mu) + quad / (1000 + s_bar ** 3)[..., None, None]
+    c1, c2, c3 = SZL_COEFFICIENTS
+    quad = c1 * t[..., 2, :, :] + c2 * t[..., 1, :, :] + c3 * t[..., 3, :, :]
+    return linear_anisotropy(s_hat, c_mu) + quad / (2 * (_SZL_A + s_bar ** 3))[..., None, None]
+
+
+def closure_anisotropy(velocity_gradient, time_scale) -> np.ndarray:
+    """Realizable Shih–Zhu–Lumley anisotropy: :func:`szl_anisotropy`, then
+    :func:`make_realizable`.
+
+    Args:
+        velocity_gradient: ``G [N, 3, 3]``, ``G_ij = ∂u_i/∂x_j``.
+        time_scale: ``k/ε [N]`` (positive).
+
+    Shapes:
+        returns ``b [N, 3, 3]``, symmetric, traceless, eigenvalues in ``[−1/3, 2/3]``.
+    """
+    return make_realizable(szl_anisotropy(velocity_gradient, time_scale))[0]
 
 
 def make_realizable(b: np.ndarray) -> tuple[np.ndarray, int]:
