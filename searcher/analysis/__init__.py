@@ -10,7 +10,8 @@ from searcher.analysis._analyze import MIN_TRIALS, SAFETY, analyze, find_parent_
 from searcher.analysis._audit import choose_for_audit, classify_reruns, prune_audit
 from searcher.analysis._bench import bench_analysis_10k
 from searcher.analysis._compare import compare
-from searcher.analysis._curves import (FEATURES, GOOD_GAP_DECADES, GOOD_LABEL, CurveGroups,
+from searcher.analysis._curves import (FEATURES, GOOD_GAP_DECADES, GOOD_LABEL, LOWEST_LABEL,
+                                       CurveGroups,
                                        curve_features, find_groups, group_curves)
 from searcher.analysis._expected import (bootstrap_band, expected_best, expected_best_curve,
                                          trials_to_hit, wilson_interval)
@@ -21,7 +22,7 @@ from searcher.analysis._space import check_comparable, comparability_problems, s
 from searcher.analysis._traits import enrichment, param_kinds, trait_rules
 
 __all__ = ["group_curves", "find_groups", "curve_features", "CurveGroups", "FEATURES",
-           "GOOD_LABEL", "GOOD_GAP_DECADES", "analyze", "find_parent_run", "MIN_TRIALS",
+           "GOOD_LABEL", "LOWEST_LABEL", "GOOD_GAP_DECADES", "analyze", "find_parent_run", "MIN_TRIALS",
            "SAFETY", "expected_best", "expected_best_curve", "bootstrap_band",
            "wilson_interval", "trials_to_hit", "compare", "space_diff",
            "comparability_problems", "check_comparable", "enrichment", "trait_rules",

@@ -17,12 +17,13 @@ from scipy.cluster.hierarchy import fcluster, linkage
 from scipy.spatial.distance import pdist
 from sklearn.metrics import silhouette_score
 
-__all__ = ["FEATURES", "GOOD_LABEL", "GOOD_GAP_DECADES", "CurveGroups", "curve_features",
-           "group_curves", "find_groups"]
+__all__ = ["FEATURES", "GOOD_LABEL", "LOWEST_LABEL", "GOOD_GAP_DECADES", "CurveGroups",
+           "curve_features", "log_curve", "group_curves", "find_groups"]
 
 FEATURES = ("final_level", "best_level", "late_slope", "mean_level", "plateaus",
             "oscillation", "steepest_at")
 GOOD_LABEL = "converges deep"
+LOWEST_LABEL = "lowest, not set apart"
 # The good group must sit this far (decades of median best level) below the next group.
 GOOD_GAP_DECADES = 0.5
 # ... and be a minority: the few that stand out, not the bulk of the study.
@@ -41,7 +42,7 @@ _WARD_SAMPLE = 1500       # Ward needs O(n^2) memory: cut a sample's tree above 
 _MIN_SEPARATION = 1.5     # scaled units between group centres
 
 
-def _log_curve(curve) -> np.ndarray:
+def log_curve(curve) -> np.ndarray:
     """log10 curve, saturated one decade above its start: how far a run blew up past that
     tells nothing more about its behaviour, and a non-finite loss counts as blown up."""
     y = np.asarray(curve, dtype=float)
@@ -67,7 +68,7 @@ def curve_features(curve) -> np.ndarray:
         >>> curve_features([1.0, 0.1, 0.01])[:2]
         array([-2., -2.])
     """
-    y = _log_curve(curve)
+    y = log_curve(curve)
     n = y.size
     if n == 1:
         return np.array([y[0], y[0], 0.0, y[0], 0.0, 0.0, 0.0])
@@ -203,7 +204,9 @@ def find_groups(curves) -> CurveGroups:
     for g in order:
         if g in names:
             continue
-        base = _shape_label(medians[g])
+        # The lowest group is named for its level, never for a stall: it is the best there is
+        # even when it is not set apart.
+        base = LOWEST_LABEL if g == order[0] else _shape_label(medians[g])
         used[base] = used.get(base, 0) + 1
         names[g] = base if used[base] == 1 else f"{base} #{used[base]}"
     return CurveGroups([names[g] for g in ids], feats, good, threshold, note)

@@ -6,7 +6,8 @@ Example:
     >>> text = r.files("searcher.spec").joinpath("defaults.yaml").read_text()
     >>> task = yaml.safe_load(text)["task"]
     >>> sorted(describe_fields(task))
-    ['anisotropy', 'pressure', 'pressure_gradient', 'strain_rate', 'velocity', 'vorticity']
+    ['anisotropy', 'pressure', 'pressure_gradient', 'scaled_strain', 'scaled_vorticity',
+     'strain_rate', 'velocity', 'vorticity']
 """
 from searcher.data._closure import (closure_anisotropy, linear_anisotropy, make_realizable,
                                     pope_terms, strain_rotation, szl_anisotropy, time_scale)

@@ -29,7 +29,7 @@ from searcher.errors import UserError
 __all__ = ["Dataset", "GENERATOR_VERSION", "build_dataset", "data_hash", "describe_fields"]
 
 # Bump whenever generated values or stored layout change, so old caches are not reused.
-GENERATOR_VERSION = "flows-2"
+GENERATOR_VERSION = "flows-4"
 
 
 def describe_fields(task_cfg: dict) -> dict[str, Field]:

@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.spatial.transform import Rotation
 
-from searcher.data._closure import make_realizable, strain_rotation, szl_anisotropy
+from searcher.data._closure import make_realizable, strain_rotation, szl_anisotropy, time_scale
 from searcher.data._flows import FAMILIES, draw_params, evaluate_flow
 from searcher.data._kinds import FIELD_KINDS, Field, to_irreps
 from searcher.errors import UserError
@@ -31,6 +31,8 @@ DEMO_FIELDS = tuple(Field(name, kind, FIELD_KINDS[kind], role, "node") for name,
     ("pressure_gradient", "vector", "input"),
     ("strain_rate", "traceless_symmetric_tensor", "input"),
     ("vorticity", "axial_vector", "input"),
+    ("scaled_strain", "traceless_symmetric_tensor", "input"),
+    ("scaled_vorticity", "axial_vector", "input"),
     ("anisotropy", "traceless_symmetric_tensor", "target"),
 ))
 _PARAMS, _PLACE, _PROBES = 0, 1, 2   # random streams per sample
@@ -98,13 +100,15 @@ def demo_sample(demo_cfg: dict, index: int, probes: int | None = None) -> Sample
     x = _probes(np.random.default_rng([seed, index, _PROBES, n]), n, region, family, params,
                 place.centre)
     u, g, p, gp = place_flow(family, params, place, x)
-    b, scaled = make_realizable(szl_anisotropy(g))
     s_rate, omega = strain_rotation(g)
+    tau = time_scale(s_rate, omega)
+    b, scaled = make_realizable(szl_anisotropy(g, tau))
     # vorticity = curl u = (2 Ω_zy, 2 Ω_xz, 2 Ω_yx) of the placed field, so it is an axial
     # vector: it picks up det(R) under a mirror, as its 1e irreps say
     vort = 2.0 * np.stack([omega[:, 2, 1], omega[:, 0, 2], omega[:, 1, 0]], axis=1)
     values = {"velocity": u, "pressure": p, "pressure_gradient": gp, "strain_rate": s_rate,
-              "vorticity": vort, "anisotropy": b}
+              "vorticity": vort, "scaled_strain": tau[:, None, None] * s_rate,
+              "scaled_vorticity": tau[:, None] * vort, "anisotropy": b}
     fields = {f.name: to_irreps(f.kind, values[f.name]) for f in DEMO_FIELDS}
     return Sample(x, fields, family, index, info={"params": params, "realizability_scaled": scaled})
 

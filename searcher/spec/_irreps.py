@@ -30,6 +30,8 @@ DEMO_FIELDS = {
     "pressure_gradient": {"kind": "vector", "role": "input", "level": "node"},
     "strain_rate": {"kind": "traceless_symmetric_tensor", "role": "input", "level": "node"},
     "vorticity": {"kind": "axial_vector", "role": "input", "level": "node"},
+    "scaled_strain": {"kind": "traceless_symmetric_tensor", "role": "input", "level": "node"},
+    "scaled_vorticity": {"kind": "axial_vector", "role": "input", "level": "node"},
     "anisotropy": {"kind": "traceless_symmetric_tensor", "role": "target", "level": "node"},
 }
 

@@ -126,3 +126,23 @@ def test_demo_vorticity_is_the_curl_and_an_axial_vector(index):
     s_rate = to_cartesian("traceless_symmetric_tensor", s.fields["strain_rate"])
     np.testing.assert_allclose(s_rate, np.swapaxes(s_rate, 1, 2), atol=1e-12)
     np.testing.assert_allclose(np.trace(s_rate, axis1=1, axis2=2), 0.0, atol=1e-10)
+
+
+def test_scaled_inputs_are_the_gradients_times_the_time_scale():
+    # Closure inputs non-dimensionalised by the turbulence time scale, Ŝ = (k/ε) S and
+    # ω̂ = (k/ε) ω (Pope 1975; Ling, Kurzawski & Templeton 2016); the demo's rule
+    # k/ε = 3.33/(2 + s + w) with s = √(2 S:S), w = |ω| (derived: 2 Ω:Ω = |ω|²).
+    from searcher.data import demo_sample, to_cartesian
+    from searcher.spec import defaults
+
+    demo = defaults()["task"]["demo"] | {"probes": 10}
+    for index in range(6):
+        f = demo_sample(demo, index).fields
+        s_rate = to_cartesian("traceless_symmetric_tensor", f["strain_rate"])
+        w = to_cartesian("axial_vector", f["vorticity"])
+        tau = 3.33 / (2 + np.sqrt(2 * (s_rate ** 2).sum((1, 2))) + np.linalg.norm(w, axis=1))
+        np.testing.assert_allclose(to_cartesian("traceless_symmetric_tensor",
+                                                f["scaled_strain"]),
+                                   tau[:, None, None] * s_rate, atol=1e-12)
+        np.testing.assert_allclose(to_cartesian("axial_vector", f["scaled_vorticity"]),
+                                   tau[:, None] * w, atol=1e-12)
