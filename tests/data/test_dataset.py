@@ -41,9 +41,10 @@ def test_dataset_contract(small_task):
     ds = build_dataset(small_task)
     g = ds.graphs[0]
     assert set(ds.fields) == {"velocity", "pressure", "pressure_gradient", "strain_rate",
-                              "vorticity", "anisotropy"}
+                              "vorticity", "scaled_strain", "scaled_vorticity", "anisotropy"}
     assert ds.target.name == "anisotropy" and [f.name for f in ds.inputs] == [
-        "velocity", "pressure", "pressure_gradient", "strain_rate", "vorticity"]
+        "velocity", "pressure", "pressure_gradient", "strain_rate", "vorticity",
+        "scaled_strain", "scaled_vorticity"]
     assert g.strain_rate.shape == (14, 5) and g.vorticity.shape == (14, 3)
     assert g.pos.dtype == torch.float32 and g.pos.shape == (14, 3)
     torch.testing.assert_close(g.pos.mean(0), torch.zeros(3), atol=1e-6, rtol=0)
@@ -161,7 +162,8 @@ def test_describe_fields_demo(default_task):
     fields = describe_fields(default_task)
     assert {k: f.irreps for k, f in fields.items()} == {
         "velocity": "1o", "pressure": "0e", "pressure_gradient": "1o", "strain_rate": "2e",
-        "vorticity": "1e", "anisotropy": "2e"}
+        "vorticity": "1e", "scaled_strain": "2e", "scaled_vorticity": "1e",
+        "anisotropy": "2e"}
 
 
 def _build_into(task, cache_dir):

@@ -39,7 +39,8 @@ def test_demo_fields():
     assert fields["anisotropy"] == {"kind": "traceless_symmetric_tensor", "irreps": "2e",
                                     "role": "target", "level": "node"}
     assert [n for n, f in fields.items() if f["role"] == "input"] == \
-        ["velocity", "pressure", "pressure_gradient", "strain_rate", "vorticity"]
+        ["velocity", "pressure", "pressure_gradient", "strain_rate", "vorticity",
+         "scaled_strain", "scaled_vorticity"]
     # vorticity is a curl: an axial vector, even under inversion (1e) - common practice
     assert fields["vorticity"]["irreps"] == "1e"
     file_fields = task_fields({"source": "x.npz", "fields": {"w": {"kind": "axial_vector",
