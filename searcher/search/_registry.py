@@ -17,7 +17,7 @@ Pruners see one step per epoch, counted from 1 (``trial.report(val_loss, epoch)`
 * ``halving``: SuccessiveHalvingPruner(min_resource=min_epochs, reduction_factor=eta);
 * ``hyperband``: HyperbandPruner(min_resource=min_epochs, max_resource=max_epochs,
   reduction_factor=eta) (Li et al., JMLR 2018);
-* ``curve_fit``: our learning-curve extrapolation pruner (``CurveFitPruner``).
+* ``outlook``: our learning-curve extrapolation pruner (:class:`~searcher.search.pruners.OutlookPruner`).
 
 ``grid`` enumerates the discrete part of the space (choices and whole-number ranges, every
 step); a real-valued dimension takes :data:`GRID_REAL_POINTS` evenly spaced values (in log
@@ -183,13 +183,13 @@ def _hyperband(cfg):
         reduction_factor=int(cfg["eta"]), bootstrap_count=0)
 
 
-@register_pruner("curve_fit")
-def _curve_fit(cfg):
-    from ._curve_fit import CurveFitPruner
+@register_pruner("outlook")
+def _outlook(cfg):
+    from .pruners import OutlookPruner
 
-    return CurveFitPruner(min_epochs=int(cfg["min_epochs"]), max_epochs=int(cfg["max_epochs"]),
-                          threshold=float(cfg["threshold"]), rank=int(cfg["rank"]),
-                          margin=float(cfg["margin"]))
+    return OutlookPruner(min_epochs=int(cfg["min_epochs"]), max_epochs=int(cfg["max_epochs"]),
+                         margin=float(cfg["margin"]), rank=int(cfg["rank"]),
+                         headroom=float(cfg["headroom"]))
 
 
 def make_pruner(cfg: dict, *, file: str = "") -> optuna.pruners.BasePruner:

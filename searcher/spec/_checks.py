@@ -8,7 +8,8 @@ budget vs epochs).
 from __future__ import annotations
 
 from searcher.spec._dims import Dimension, Sink, did_you_mean, is_dimension, parse_dimension
-from searcher.spec._rules import RULES, VARYING_SECTIONS, Fields, Fractions, Names
+from searcher.spec._rules import (RENAMED_KEYS, RENAMED_VALUES, RULES, VARYING_SECTIONS, Fields,
+                                  Fractions, Names)
 from searcher.spec._irreps import FIELD_KINDS, task_fields
 
 __all__ = ["check_tree", "check_links", "leaf_paths", "get", "flatten", "condition_values",
@@ -60,6 +61,9 @@ def check_tree(data: dict, defaults: dict, sink: Sink, path: tuple = ()) -> dict
     for key, value in data.items():
         here = path + (key,)
         dotted = ".".join(here)
+        if key not in defaults and dotted in RENAMED_KEYS:
+            sink.add(f"{key!r} was renamed: write {RENAMED_KEYS[dotted]}", here, key=True)
+            continue
         if key not in defaults:
             near = did_you_mean(key, defaults)
             if not near:  # a key put in the wrong section: suggest its full path
@@ -89,7 +93,9 @@ def check_tree(data: dict, defaults: dict, sink: Sink, path: tuple = ()) -> dict
                 dims[dotted] = dim
             continue
         why = rule.problem(value)
-        if why:
+        if isinstance(value, str) and (dotted, value) in RENAMED_VALUES:
+            sink.add(f"{value!r} was renamed: write {RENAMED_VALUES[dotted, value]!r}", here)
+        elif why:
             sink.add(f"got {value!r}; allowed: {why}", here)
         elif isinstance(rule, Fields):
             _check_fields(value, here, sink)

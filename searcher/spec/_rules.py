@@ -14,7 +14,7 @@ from searcher.spec._irreps import FIELD_KINDS, parse_irreps
 
 __all__ = ["Rule", "Whole", "Real", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
            "Fields", "RULES", "DEMO_FAMILIES", "STRESS_SETS", "EDGE_INVARIANTS",
-           "VARYING_SECTIONS"]
+           "VARYING_SECTIONS", "RENAMED_KEYS", "RENAMED_VALUES"]
 
 VARYING_SECTIONS = ("model", "training")
 DEMO_FAMILIES = ("abc", "taylor_green", "burgers", "lamb_oseen", "strain", "sphere")
@@ -211,6 +211,12 @@ class Fields(Rule):
                 "additionalProperties": entry}
 
 
+# Names a study may still carry from before a rename: old dotted key -> what to write now, and
+# (dotted key, old value) -> the new value.  They give a located error naming the new name.
+RENAMED_KEYS = {"search.pruner.threshold": "margin (the chance below which outlook prunes; "
+                                           "the decades above the k-th best are now headroom)"}
+RENAMED_VALUES = {("search.pruner.kind", "curve_fit"): "outlook"}
+
 _POS = Real(0, None, lo_open=True)
 RULES: dict[str, Rule] = {
     "study.name": Text(r"[A-Za-z0-9_-]+", "a name of letters, digits, '-' and '_' "
@@ -255,12 +261,12 @@ RULES: dict[str, Rule] = {
     "search.sampler.startup": Whole(0), "search.sampler.candidates": Whole(1),
     "search.sampler.multivariate": Flag(),
     "search.pruner.kind": OneOf(("none", "median", "percentile", "halving", "hyperband",
-                                 "curve_fit")),
+                                 "outlook")),
     "search.pruner.min_epochs": Whole(1), "search.pruner.max_epochs": Whole(1),
     "search.pruner.eta": Whole(2), "search.pruner.percentile": Real(0, 100, True, True),
-    "search.pruner.warmup": Whole(0), "search.pruner.threshold": Real(0, 1, True, True),
+    "search.pruner.warmup": Whole(0), "search.pruner.margin": Real(0, 1, True, True),
     "search.pruner.rank": Whole(1),
-    "search.pruner.margin": Real(0, 6),
+    "search.pruner.headroom": Real(0, 6),
     "search.budget.trials": Whole(1), "search.budget.hours": Real(0),
     "search.budget.until": Text(r"|([01]\d|2[0-3]):[0-5]\d", "\"\" or a clock time HH:MM"),
     "search.workers": Whole(1, 1024), "search.seed": Whole(0), "search.storage": Text(),
