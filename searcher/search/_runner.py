@@ -97,7 +97,7 @@ class _Signals:
 def run_study(study, *, workers: int | None = None, trials: int | None = None,
               hours: float | None = None, until: str | None = None,
               storage: str | None = None, out: str | Path | None = None,
-              live: bool | None = None, echo=print) -> RunSummary:
+              live: bool | None = None, echo=print, new_space: bool = False) -> RunSummary:
     """Run (or continue) a study until its budget, deadline or a signal.
 
     Args:
@@ -111,6 +111,8 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
         out: output folder overriding the study's.
         live: rich live panel (default: when stdout is a terminal); else plain lines.
         echo: where plain progress lines go.
+        new_space: add trials to a store whose study was made from another space (else a
+            changed space is refused; see :func:`open_store`).
 
     Returns:
         A :class:`RunSummary`.
@@ -150,8 +152,8 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
     deadline = deadline_of(hours if hours is not None else search["budget"]["hours"],
                            until if until is not None else search["budget"]["until"], start)
     ensure_folder(output_dir, **where)
+    opt = open_store(study, storage, new_space=new_space)   # a changed space stops here
     build_dataset(cfg["task"], cache_dir=output_dir / "cache")
-    opt = open_store(study, storage)
     notes = []
     lost, queued = recover(opt)
     if lost or queued:

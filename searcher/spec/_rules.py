@@ -14,9 +14,10 @@ from searcher.spec._irreps import FIELD_KINDS, parse_irreps
 
 __all__ = ["Rule", "Whole", "Real", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
            "Fields", "RULES", "DEMO_FAMILIES", "STRESS_SETS", "EDGE_INVARIANTS",
-           "VARYING_SECTIONS", "RENAMED_KEYS", "RENAMED_VALUES"]
+           "VARYING_SECTIONS", "NAME_PATTERN", "RENAMED_KEYS", "RENAMED_VALUES"]
 
 VARYING_SECTIONS = ("model", "training")
+NAME_PATTERN = r"|[A-Za-z0-9_-]+"
 DEMO_FAMILIES = ("abc", "taylor_green", "burgers", "lamb_oseen", "strain", "sphere")
 STRESS_SETS = ("rotated", "reflected", "translated", "unseen_family", "denser", "sparser")
 EDGE_INVARIANTS = ("distance", "speed_jump", "pressure_jump", "radial_velocity")
@@ -219,8 +220,8 @@ RENAMED_VALUES = {("search.pruner.kind", "curve_fit"): "outlook"}
 
 _POS = Real(0, None, lo_open=True)
 RULES: dict[str, Rule] = {
-    "study.name": Text(r"[A-Za-z0-9_-]+", "a name of letters, digits, '-' and '_' "
-                                           "(it names the output folder)"),
+    "study.name": Text(NAME_PATTERN, "a name of letters, digits, '-' and '_', or \"\" for the "
+                                     "file's name (it names the output folder)"),
     "study.summary": Text(), "study.team": Text(),
     "task.source": Text(r".+", "\"demo\" or a path to data files"),
     "task.demo.samples": Whole(3), "task.demo.probes": Whole(2),
