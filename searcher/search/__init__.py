@@ -16,7 +16,7 @@ from ._runner import RunSummary, deadline_of, parse_until, run_study
 from ._status import study_status
 from ._store import make_storage, open_store, read_store, storage_down, storage_label
 from ._tracking import (Tracker, TrackingInfo, find_study_run, flatten, prepare_tracking)
-from ._trial import TrialRunner, trial_seed
+from ._trial import TrialRunner, guard_check, trial_seed
 from ._urls import mask_url, public_config, tracking_uri
 from .pruners import OutlookPruner, prob_beats
 
@@ -28,6 +28,6 @@ __all__ = [
     "RunSummary", "deadline_of", "parse_until", "run_study", "study_status", "make_storage",
     "open_store", "read_store", "storage_down", "storage_label", "Tracker", "TrackingInfo",
     "find_study_run", "flatten",
-    "prepare_tracking", "TrialRunner", "trial_seed", "mask_url", "public_config", "tracking_uri",
+    "prepare_tracking", "TrialRunner", "guard_check", "trial_seed", "mask_url", "public_config", "tracking_uri",
     "OutlookPruner", "config_line",
 ]

@@ -15,7 +15,7 @@ import re
 from functools import lru_cache
 from pathlib import Path
 
-from searcher.errors import UserError
+from searcher.errors import Problem, UserError
 from searcher.spec._checks import check_links, check_tree, condition_values, get, leaf_paths, order_dims
 from searcher.spec._derive import DeriveError
 from searcher.spec._dims import Dimension, Sink, is_dimension
@@ -143,6 +143,12 @@ class Study:
             raise UserError([self._problem(
                 f"derive {dim.expr.text!r} gives {value!r}; allowed: {why}", at)])
         return value
+
+    def locate(self, message: str, dotted: str) -> Problem:
+        """A problem found after loading (e.g. by a command), located at key ``dotted``."""
+        sink = Sink(self._sink.values, self._sink.keys, str(self.path))
+        sink.add(message, tuple(dotted.split(".")))
+        return sink.problems[0]
 
     def _problem(self, message: str, at: tuple):
         sink = Sink(self._sink.values, self._sink.keys, str(self.path))
