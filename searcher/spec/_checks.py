@@ -8,8 +8,8 @@ budget vs epochs).
 from __future__ import annotations
 
 from searcher.spec._dims import Dimension, Sink, did_you_mean, is_dimension, parse_dimension
-from searcher.spec._rules import (RENAMED_KEYS, RENAMED_VALUES, RULES, VARYING_SECTIONS, Fields,
-                                  Fractions, Names)
+from searcher.spec._rules import (MEANING_NOTES, RENAMED_KEYS, RENAMED_VALUES, RULES,
+                                  VARYING_SECTIONS, Fields, Fractions, Names)
 from searcher.spec._irreps import FIELD_KINDS, task_fields
 
 __all__ = ["check_tree", "check_links", "leaf_paths", "get", "flatten", "condition_values",
@@ -96,7 +96,8 @@ def check_tree(data: dict, defaults: dict, sink: Sink, path: tuple = ()) -> dict
         if isinstance(value, str) and (dotted, value) in RENAMED_VALUES:
             sink.add(f"{value!r} was renamed: write {RENAMED_VALUES[dotted, value]!r}", here)
         elif why:
-            sink.add(f"got {value!r}; allowed: {why}", here)
+            note = f" ({MEANING_NOTES[dotted]})" if dotted in MEANING_NOTES else ""
+            sink.add(f"got {value!r}; allowed: {why}{note}", here)
         elif isinstance(rule, Fields):
             _check_fields(value, here, sink)
     return dims

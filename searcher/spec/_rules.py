@@ -14,7 +14,8 @@ from searcher.spec._irreps import FIELD_KINDS, parse_irreps
 
 __all__ = ["Rule", "Whole", "Real", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
            "Fields", "RULES", "DEMO_FAMILIES", "STRESS_SETS", "EDGE_INVARIANTS",
-           "VARYING_SECTIONS", "NAME_PATTERN", "RENAMED_KEYS", "RENAMED_VALUES"]
+           "VARYING_SECTIONS", "NAME_PATTERN", "RENAMED_KEYS", "RENAMED_VALUES",
+           "MEANING_NOTES"]
 
 VARYING_SECTIONS = ("model", "training")
 NAME_PATTERN = r"|[A-Za-z0-9_-]+"
@@ -217,6 +218,9 @@ class Fields(Rule):
 RENAMED_KEYS = {"search.pruner.threshold": "margin (the chance below which outlook prunes; "
                                            "the decades above the k-th best are now headroom)"}
 RENAMED_VALUES = {("search.pruner.kind", "curve_fit"): "outlook"}
+# A key whose meaning changed keeps a note for values only the old meaning allowed.
+MEANING_NOTES = {"search.pruner.margin": "margin is the chance below which outlook prunes; "
+                                         "decades above the k-th best are now headroom"}
 
 _POS = Real(0, None, lo_open=True)
 RULES: dict[str, Rule] = {

@@ -30,6 +30,11 @@ def test_old_pruner_option_names_the_new_one(tmp_path):
     assert "margin" in p.message and "headroom" in p.message
 
 
+def test_a_margin_in_decades_says_what_margin_means_now(tmp_path):
+    (p,) = _problems(tmp_path, search={"pruner": {"kind": "outlook", "margin": 1.0}})
+    assert p.path == "search.pruner.margin" and "headroom" in p.message
+
+
 def test_schema_and_defaults_carry_no_old_name():
     from pathlib import Path
 
