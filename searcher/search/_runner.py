@@ -153,8 +153,13 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
                            until if until is not None else search["budget"]["until"], start)
     ensure_folder(output_dir, **where)
     opt = open_store(study, storage, new_space=new_space)   # a changed space stops here
-    build_dataset(cfg["task"], cache_dir=output_dir / "cache")
-    notes = []
+    with warnings.catch_warnings(record=True) as caught:
+        # the data's own warnings (isolated nodes, ...) become one note each, printed once
+        # by the caller, not a Python warning per process
+        warnings.simplefilter("always", UserWarning)
+        build_dataset(cfg["task"], cache_dir=output_dir / "cache")
+    notes = list(dict.fromkeys(f"data: {w.message}" for w in caught
+                               if issubclass(w.category, UserWarning)))
     lost, queued = recover(opt)
     if lost or queued:
         notes.append(f"recovered {lost} lost trial(s), re-queued {queued} interrupted one(s)")
