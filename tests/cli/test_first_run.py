@@ -37,3 +37,18 @@ def test_version_exits_0(capsys):
     with pytest.raises(SystemExit) as done:
         main(["--version"])
     assert done.value.code == 0 and capsys.readouterr().out.startswith("searcher ")
+
+
+def test_status_of_a_study_that_never_ran_says_so(tmp_path, capsys):
+    path = _study_file(tmp_path, "fresh")
+    assert main(["status", str(path)]) == 1
+    err = capsys.readouterr().err
+    assert "has never run" in err and "searcher run" in err
+    assert not (tmp_path / "out").exists()              # status writes nothing
+
+
+def test_compare_with_one_study_says_it_needs_two_first(tmp_path, capsys):
+    path = _study_file(tmp_path, "alone")               # never run: no journal either
+    assert main(["compare", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "two or more study files" in err and "journal" not in err
