@@ -3,11 +3,12 @@ recovery, MLflow tracking and live progress.
 
 Public API (DEVELOPERS.md, "Contracts/search"): :func:`open_store`, :func:`run_study`,
 :func:`study_status`, :func:`rerun_config`, :func:`train_config`; the registries
-:data:`SAMPLERS` and :data:`PRUNERS`; the outcome helpers.
+:data:`SAMPLERS` and :data:`PRUNERS`; the outcome helpers of :mod:`searcher.outcomes`.
 """
+from searcher.outcomes import OUTCOMES, VALUED, best_record, finished, outcome_of, tally
+
 from ._keep import checkpoint_path, keep_best
 from ._live import config_line
-from ._outcomes import OUTCOMES, VALUED, best_record, finished, outcome_of, tally
 from ._recover import process_alive, recover
 from ._registry import (PRUNERS, SAMPLERS, SEED_STRIDE, grid_space, make_pruner, make_sampler,
                         register_pruner, register_sampler, sampler_seed)

@@ -120,7 +120,7 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
     from searcher.data import build_dataset
 
     from ._live import Monitor
-    from ._outcomes import best_record, tally
+    from searcher.outcomes import best_record, tally
     from ._recover import recover
     from ._store import open_store, storage_down, storage_label
     from ._tracking import prepare_tracking

@@ -22,7 +22,7 @@ def study_status(study, storage: str | None = None, *, out: str | Path | None = 
         → int, plus running/waiting), "states" (Optuna state name → int), "best" ({number,
         value, config} or None), "cpu_seconds"}``.
     """
-    from ._outcomes import best_record, tally
+    from searcher.outcomes import best_record, tally
     from ._store import read_store, storage_label
 
     if out is not None:

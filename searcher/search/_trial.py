@@ -1,4 +1,4 @@
-"""One search trial: resolve, gate, guard, train, record (see ``_outcomes`` for states).
+"""One search trial: resolve, gate, guard, train, record (see :mod:`searcher.outcomes` for states).
 
 The trial's user attributes follow the store contract in DEVELOPERS.md (``config``,
 ``study_hash``, ``data_hash``, ``outcome``, ``reason``, ``best_value``, ``best_epoch``,
