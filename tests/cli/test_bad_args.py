@@ -10,7 +10,7 @@ import pytest
 import torch
 
 import searcher
-from searcher.analysis._synthetic import planted_study
+from searcher.testing._planted import planted_study
 from searcher.cli import main
 from searcher.errors import UserError, ensure_folder
 from searcher.spec import load_study
