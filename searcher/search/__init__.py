@@ -12,7 +12,7 @@ from ._live import config_line
 from ._recover import process_alive, recover
 from ._registry import (PRUNERS, SAMPLERS, SEED_STRIDE, grid_space, make_pruner, make_sampler,
                         register_pruner, register_sampler, sampler_seed)
-from ._rerun import rerun_config, study_dataset, train_config
+from ._train_outside import rerun_config, study_dataset, train_config
 from ._runner import RunSummary, deadline_of, parse_until, run_study
 from ._status import study_status
 from ._store import make_storage, open_store, read_store, storage_down, storage_label
