@@ -33,6 +33,7 @@ from typing import Callable
 import optuna
 
 from searcher.errors import UserError
+from searcher.options import declared
 
 __all__ = ["SAMPLERS", "PRUNERS", "make_sampler", "make_pruner", "sampler_seed",
            "register_sampler", "register_pruner", "SEED_STRIDE", "MIN_FINISHED",
@@ -47,7 +48,10 @@ PRUNERS: dict[str, Callable] = {}
 
 
 def register_sampler(name: str):
-    """Decorator: ``fn(study, cfg: search.sampler, seed) -> BaseSampler`` under ``name``."""
+    """Decorator: ``fn(study, cfg: search.sampler, seed) -> BaseSampler`` under ``name``
+    (declared in :mod:`searcher.options`)."""
+    declared("search.sampler.kind", name)
+
     def deco(fn):
         SAMPLERS[name] = fn
         return fn
@@ -55,7 +59,10 @@ def register_sampler(name: str):
 
 
 def register_pruner(name: str):
-    """Decorator: ``fn(cfg: search.pruner) -> BasePruner`` under ``name``."""
+    """Decorator: ``fn(cfg: search.pruner) -> BasePruner`` under ``name`` (declared in
+    :mod:`searcher.options`)."""
+    declared("search.pruner.kind", name)
+
     def deco(fn):
         PRUNERS[name] = fn
         return fn

@@ -1,6 +1,6 @@
 """Declared constraints for every key of ``defaults.yaml`` (validated at one door).
 
-Each key has one rule object; a rule says whether a plain value is allowed (returning what
+Each key has one rule object (the names of registries come from :mod:`searcher.options`); a rule says whether a plain value is allowed (returning what
 *is* allowed when not) and how it looks in JSON Schema.  Cross-key rules (fields named by
 the model, pruner budget vs epochs, reachability) live in ``_checks.py``.
 """
@@ -10,6 +10,7 @@ import math
 import re
 from dataclasses import dataclass
 
+from searcher.options import REGISTERED
 from searcher.spec._irreps import FIELD_KINDS, parse_irreps
 
 __all__ = ["Rule", "Whole", "Real", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
@@ -238,7 +239,7 @@ RULES: dict[str, Rule] = {
     "task.split.hold_out": Names(DEMO_FAMILIES), "task.split.stress": Names(STRESS_SETS),
     "task.split.shift": Real(0),
     "task.fidelity.train_fraction": Real(0, 1, lo_open=True), "task.fidelity.probes": Whole(0),
-    "model.family": OneOf(("steerable", "gated", "node_mlp", "coord_mlp")),
+    "model.family": OneOf(REGISTERED["model.family"]),
     "model.hidden.irreps": Irreps(), "model.hidden.lmax": Whole(0, 8),
     "model.hidden.multiplicity": Whole(1, 1024),
     "model.hidden.taper": OneOf(("uniform", "tapered", "balanced")),
@@ -249,12 +250,13 @@ RULES: dict[str, Rule] = {
     "model.node_attr_field": Text(r"[A-Za-z_][A-Za-z0-9_]*", "a field name"),
     "model.node_inputs": Names(nonempty=True),
     "model.edge_invariants": Names(EDGE_INVARIANTS),
-    "model.radial.basis": OneOf(("gaussian", "bessel", "cosine", "smooth_finite", "fourier")),
+    "model.radial.basis": OneOf(REGISTERED["model.radial.basis"]),
     "model.radial.count": Whole(1, 128), "model.radial.cutoff": _POS,
-    "model.radial.envelope": OneOf(("polynomial", "cosine")), "model.radial.power": Whole(1, 32),
+    "model.radial.envelope": OneOf(REGISTERED["model.radial.envelope"]),
+    "model.radial.power": Whole(1, 32),
     "model.layers": Whole(1, 32), "model.norm": OneOf(("none", "batch", "instance")),
     "model.residual": Flag(), "model.input_products": Flag(), "model.aggregate": OneOf(("sum", "mean", "degree")),
-    "model.activation": OneOf(("silu", "tanh", "gelu", "softplus", "relu")),
+    "model.activation": OneOf(REGISTERED["model.activation"]),
     "model.width": Whole(1, 4096),
     "training.epochs": Whole(1), "training.batch_size": Whole(1),
     "training.optimiser": OneOf(("adam", "adamw")), "training.learning_rate": _POS,
@@ -262,11 +264,10 @@ RULES: dict[str, Rule] = {
     "training.warmup_epochs": Whole(0), "training.clip": Real(0), "training.seed": Whole(0),
     "training.device": OneOf(("cpu", "auto")), "training.time_limit": _POS,
     "training.diverge_factor": Real(1, None, lo_open=True),
-    "search.sampler.kind": OneOf(("tpe", "random", "gp", "cmaes", "qmc", "grid")),
+    "search.sampler.kind": OneOf(REGISTERED["search.sampler.kind"]),
     "search.sampler.startup": Whole(0), "search.sampler.candidates": Whole(1),
     "search.sampler.multivariate": Flag(),
-    "search.pruner.kind": OneOf(("none", "median", "percentile", "halving", "hyperband",
-                                 "outlook")),
+    "search.pruner.kind": OneOf(REGISTERED["search.pruner.kind"]),
     "search.pruner.min_epochs": Whole(1), "search.pruner.max_epochs": Whole(1),
     "search.pruner.eta": Whole(2), "search.pruner.percentile": Real(0, 100, True, True),
     "search.pruner.warmup": Whole(0), "search.pruner.margin": Real(0, 1, True, True),
