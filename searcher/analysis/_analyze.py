@@ -11,7 +11,7 @@ from searcher.analysis._importance import importances
 from searcher.analysis._json import dumps
 from searcher.analysis._placing import forecast_best
 from searcher.analysis._plots import plot_bars, plot_curves
-from searcher.analysis._rarity import SPACE_DRAWS, rarity
+from searcher.analysis._rarity import SPACE_DRAWS, random_drawn, rarity
 from searcher.analysis._records import count_outcomes, read_trials
 from searcher.analysis._traits import enrichment, trait_rules
 from searcher.errors import ensure_folder
@@ -50,7 +50,8 @@ def place_curves(curved) -> tuple[list[str], np.ndarray, dict, object]:
         placed), ``{trial number: forecast dict}``, and the finished curves' CurveGroups.
     """
     finished = [i for i, r in enumerate(curved) if r.outcome in FINISHED]
-    found = find_groups([curved[i].curve for i in finished])
+    found = find_groups([curved[i].curve for i in finished],
+                        drawn=[random_drawn(curved[i]) for i in finished])
     labels = [""] * len(curved)
     levels = np.full(len(curved), np.nan)
     for i, label, feats in zip(finished, found.labels, found.features):

@@ -17,7 +17,7 @@ from scipy.cluster.hierarchy import fcluster, linkage
 from scipy.spatial.distance import pdist
 from sklearn.metrics import silhouette_score
 
-__all__ = ["FEATURES", "GOOD_LABEL", "LOWEST_LABEL", "GOOD_GAP_DECADES", "CurveGroups",
+__all__ = ["FEATURES", "GOOD_LABEL", "LOWEST_LABEL", "GOOD_GAP_DECADES", "MIN_DRAWN", "CurveGroups",
            "curve_features", "log_curve", "group_curves", "find_groups"]
 
 FEATURES = ("final_level", "best_level", "late_slope", "mean_level", "plateaus",
@@ -28,9 +28,14 @@ LOWEST_LABEL = "lowest, not set apart"
 GOOD_GAP_DECADES = 0.5
 # ... and be a minority: the few that stand out, not the bulk of the study.
 GOOD_MAX_SHARE = 0.5
+# The share is read over the curves drawn at random from the space when there are at least
+# this many: a model-based sampler spends most of its trials where it found good ones, so
+# the share over all trials says more about the sampler than about the space.
+MIN_DRAWN = 5
 GOOD_RULE = ("the group whose median best level is lowest, at least "
              f"{GOOD_GAP_DECADES} decade below the next group's, and holding at most "
-             f"{GOOD_MAX_SHARE:.0%} of the curves")
+             f"{GOOD_MAX_SHARE:.0%} of the curves drawn at random from the space (of all "
+             f"curves when fewer than {MIN_DRAWN} were)")
 # Smallest meaningful spread per feature; below it differences are treated as noise.
 _FLOORS = np.array([0.2, 0.2, 0.3, 0.2, 1.0, 0.03, 0.25])
 # Levels decide "good", so they weigh more than shape.
@@ -172,8 +177,15 @@ class CurveGroups:
     rule: str = GOOD_RULE
 
 
-def find_groups(curves) -> CurveGroups:
-    """Group ``curves`` (list of 1-D loss arrays) and name the good group if there is one."""
+def find_groups(curves, drawn=None) -> CurveGroups:
+    """Group ``curves`` (list of 1-D loss arrays) and name the good group if there is one.
+
+    Args:
+        curves: validation losses per epoch, one array per trial.
+        drawn: optional boolean per curve, True where the trial's configuration was drawn at
+            random from the space (a sampler's start-up trials).  With at least
+            :data:`MIN_DRAWN` of them the minority rule is read over those curves only.
+    """
     feats = np.array([curve_features(c) for c in curves]).reshape(len(curves), len(FEATURES))
     if len(curves) < 2:
         return CurveGroups(["single curve"] * len(curves), feats, None, None,
@@ -186,9 +198,13 @@ def find_groups(curves) -> CurveGroups:
     good, threshold, note = None, None, ""
     if len(order) >= 2:
         low, nxt = medians[order[0]][1], medians[order[1]][1]
-        share = float(np.mean(ids == order[0]))
+        pick = np.ones(len(curves), dtype=bool)
+        if drawn is not None and int(np.sum(drawn)) >= MIN_DRAWN:
+            pick = np.asarray(drawn, dtype=bool)
+        whose = "of the curves" if pick.all() else "of the curves drawn at random"
+        share = float(np.mean(ids[pick] == order[0]))
         if share > GOOD_MAX_SHARE:
-            note = (f"no distinct good group: the lowest group holds {share:.0%} of the curves "
+            note = (f"no distinct good group: the lowest group holds {share:.0%} {whose} "
                     f"(rule: at most {GOOD_MAX_SHARE:.0%}); it is the bulk of the study, not "
                     f"a few configurations that stand out")
         elif nxt - low >= GOOD_GAP_DECADES:

@@ -1,8 +1,8 @@
 """``searcher demo``: the whole job on the embedded analytic-flow demo.
 
 It writes a small study file into the output folder that extends ``studies/demo.yaml``
-(``--quick`` shrinks the budget, data and epochs), runs it with 2 workers and Hyperband
-pruning, then the analysis and the dossier, and prints where everything is.
+(``--quick`` shrinks the budget, data and epochs), runs it with 2 workers and the demo's
+pruner, then the analysis and the dossier, and prints where everything is.
 """
 from __future__ import annotations
 
@@ -18,10 +18,10 @@ __all__ = ["register", "demo_study_text", "QUICK"]
 
 # --quick: fewer, shorter trials on fewer, smaller graphs (about a third of the full demo).
 QUICK = {"study": {"name": "demo-quick"},
-         "task": {"demo": {"samples": 40, "probes": 28}},
-         "training": {"epochs": 12},
-         "search": {"budget": {"trials": 14},
-                    "pruner": {"min_epochs": 2, "max_epochs": 12}}}
+         "task": {"demo": {"samples": 48}},
+         "training": {"epochs": 15},
+         "search": {"budget": {"trials": 16},
+                    "pruner": {"min_epochs": 2, "max_epochs": 15}}}
 
 
 def _demo_file() -> Path:

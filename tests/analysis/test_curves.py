@@ -71,3 +71,25 @@ def test_lowest_group_that_is_the_bulk_is_not_the_good_group():
     result = find_groups(bulk + [np.geomspace(1.0, 1e5, 12)])
     assert result.good is None and "bulk" in result.note
     assert GOOD_LABEL not in result.labels
+
+
+def test_minority_rule_reads_the_randomly_drawn_curves():
+    # A model-based sampler that found the deep region spends most trials there: 2 of 10
+    # random start-up trials are deep, and 20 of the 25 later ones.  Over all 35 curves the
+    # deep group holds 22/35 = 63 % (> 50 %, derived), over the random ones 2/10 = 20 %.
+    rng = np.random.default_rng(1)
+
+    def curve(final):
+        return np.geomspace(1.0, final, 12) * np.exp(rng.normal(0, 0.01, 12))
+
+    drawn = [curve(1e-4) for _ in range(2)] + [curve(0.1) for _ in range(8)]
+    guided = [curve(1e-4) for _ in range(20)] + [curve(0.1) for _ in range(5)]
+    curves = drawn + guided
+    mask = [True] * 10 + [False] * 25
+    assert find_groups(curves).good is None
+    found = find_groups(curves, drawn=mask)
+    assert found.good == GOOD_LABEL
+    assert [lab == GOOD_LABEL for lab in found.labels] == \
+        [True] * 2 + [False] * 8 + [True] * 20 + [False] * 5
+    # too few random curves (MIN_DRAWN): the rule falls back to all curves
+    assert find_groups(curves, drawn=[True] * 4 + [False] * 31).good is None
