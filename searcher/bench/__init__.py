@@ -12,7 +12,8 @@ from searcher.bench._pruners import (TRUTH_DIR, bench_pruners, crossing_pairs,
 from searcher.bench._suite import GOALS, PLANS, format_table, machine, main, run_bench
 from searcher.bench._sweep import fixed_params, overhead, sweep_study, worker_scaling
 
-__all__ = ["GOALS", "PLANS", "TRUTH_DIR", "bench_analysis_10k", "bench_pruners", "crossing_pairs", "fixed_params",
+__all__ = ["GOALS", "PLANS", "TRUTH_DIR", "bench_analysis_10k", "bench_pruners", "crossing_pairs",
+           "fixed_params",
            "format_bench_pruners", "truth_curves", "flop_utilisation", "format_table",
            "loop_vs_reference", "machine", "main", "matmul_rate", "overhead",
            "reference_module", "run_bench", "sized_config", "sweep_study", "worker_scaling"]

@@ -41,7 +41,7 @@ EXPECTED = {
     "node_inputs_subset.yaml": [(5, 38, "model.node_inputs", "not a subset of the input fields")],
     "node_attr_not_vector.yaml": [(5, 20, "model.node_attr_field", "must be a vector input field")],
     "edge_invariant_needs_field.yaml": [(11, 20, "model.edge_invariants", "needs an input field 'pressure'")],
-    "pruner_epochs.yaml": [(6, 17, "search.pruner.max_epochs", "exceeds training.epochs (18")],
+    "pruner_epochs.yaml": [(6, 17, "search.pruner.max_epochs", "exceeds training.epochs (30")],
     "fixed_section_dimension.yaml": [(4, 12, "search.workers", "search keys are fixed")],
     "multiple_errors.yaml": [
         (5, 3, "model.famly", "did you mean 'family'?"),
