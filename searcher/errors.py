@@ -25,13 +25,17 @@ class Problem:
     path: str = ""
 
     def render(self) -> str:
-        where = self.file or "<input>"
-        if self.line:
+        """``file:line:column: [key] message``; what is unknown is left out (an option's
+        problem reads ``[--out] message``)."""
+        where = self.file
+        if where and self.line:
             where += f":{self.line}"
             if self.column:
                 where += f":{self.column}"
-        key = f" [{self.path}]" if self.path else ""
-        return f"{where}:{key} {self.message}"
+        parts = [f"{where}:"] if where else []
+        if self.path:
+            parts.append(f"[{self.path}]")
+        return " ".join(parts + [self.message])
 
     def to_dict(self) -> dict:
         return {"file": self.file, "line": self.line, "column": self.column,

@@ -8,7 +8,6 @@ plus the pieces they are built from.
 """
 from searcher.analysis._analyze import MIN_TRIALS, SAFETY, analyze, find_parent_run
 from searcher.analysis._audit import choose_for_audit, classify_reruns, prune_audit
-from searcher.analysis._bench import bench_analysis_10k
 from searcher.analysis._compare import compare
 from searcher.analysis._curves import (FEATURES, GOOD_GAP_DECADES, GOOD_LABEL, LOWEST_LABEL,
                                        CurveGroups,
@@ -27,5 +26,4 @@ __all__ = ["group_curves", "find_groups", "curve_features", "CurveGroups", "FEAT
            "wilson_interval", "trials_to_hit", "compare", "space_diff",
            "comparability_problems", "check_comparable", "enrichment", "trait_rules",
            "param_kinds", "importances", "choose_for_audit", "classify_reruns",
-           "prune_audit", "read_trials", "count_outcomes", "TrialRecord", "OUTCOMES", "dumps",
-           "bench_analysis_10k"]
+           "prune_audit", "read_trials", "count_outcomes", "TrialRecord", "OUTCOMES", "dumps"]

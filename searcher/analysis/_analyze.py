@@ -206,13 +206,15 @@ def find_parent_run(tracking_uri: str, study_name: str) -> str | None:
     ``searcher.study = <name>``), or None when the tracker holds none."""
     from mlflow.tracking import MlflowClient
 
+    from searcher.outcomes import STUDY_ROLE, TAGS
+
     client = MlflowClient(tracking_uri=tracking_uri)
     ids = [e.experiment_id for e in client.search_experiments()]
     if not ids:
         return None
     runs = client.search_runs(
-        ids, filter_string=f"tags.`searcher.role` = 'study' and "
-                           f"tags.`searcher.study` = '{study_name}'",
+        ids, filter_string=f"tags.`{TAGS['role']}` = '{STUDY_ROLE}' and "
+                           f"tags.`{TAGS['study']}` = '{study_name}'",
         order_by=["attributes.start_time ASC"], max_results=1)
     return runs[0].info.run_id if runs else None
 

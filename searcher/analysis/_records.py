@@ -12,16 +12,10 @@ from dataclasses import dataclass, field
 import numpy as np
 import optuna
 
+from searcher.outcomes import OUTCOMES, STATE_OUTCOME
+
 __all__ = ["OUTCOMES", "TrialRecord", "read_trials", "count_outcomes"]
 
-OUTCOMES = ("completed", "pruned", "diverged", "rejected", "timeout", "interrupted", "failed")
-
-# A trial written without an ``outcome`` attr (e.g. by hand) still has an Optuna state.
-_STATE_OUTCOME = {
-    optuna.trial.TrialState.COMPLETE: "completed",
-    optuna.trial.TrialState.PRUNED: "pruned",
-    optuna.trial.TrialState.FAIL: "failed",
-}
 
 
 @dataclass
@@ -60,7 +54,9 @@ def _as_float(value, default: float) -> float:
 
 def _record(trial: optuna.trial.FrozenTrial) -> TrialRecord | None:
     attrs = trial.user_attrs
-    outcome = attrs.get("outcome") or _STATE_OUTCOME.get(trial.state)
+    # a trial without an ``outcome`` attribute (its worker died, or written by hand) takes
+    # the contract's outcome of its state
+    outcome = attrs.get("outcome") or STATE_OUTCOME.get(trial.state)
     if outcome is None:  # running or waiting: not finished, nothing to read yet
         return None
     steps = sorted(trial.intermediate_values)

@@ -1,11 +1,11 @@
-"""Pruner benchmark: replay none / median / Hyperband / curve_fit over ground-truth curves.
+"""Pruner benchmark: replay none / median / Hyperband / outlook over ground-truth curves.
 
 Ground truth: a fixed, seeded sample of configurations from a study's space is trained to the
 full epoch budget once (a pool of processes, one torch thread each) and cached as JSON under
 ``runs/bench-cache/pruner-truth-<key>.json``; the key hashes the study hash, the data hash,
 the sample seed, the training seeds, the epoch budget and any config overrides, so a cache is
 reused only for exactly the same curves.  Every pruner is then replayed over the same curves
-in the same order (:func:`searcher.search.replay`) and judged on epochs spent, best loss kept
+in the same order (:func:`searcher.testing.replay`) and judged on epochs spent, best loss kept
 and ground-truth good-group members cut.  The good group is the analysis layer's
 (:func:`searcher.analysis.find_groups` on the full curves); without a distinct good group
 the best decile stands in, and the notes say so.
@@ -36,8 +36,8 @@ TRUTH_DIR = Path("runs") / "bench-cache"
 # more than this many decades on both sides (validation noise on 8 graphs is a few percent).
 _CROSS_NOISE = 0.05
 
-# A second curve_fit row runs the plain k-th-best rule (``margin: 0``) beside the study's
-# setting (default 0.5 decade), to show what the margin buys.
+# A second outlook row runs the plain k-th-best rule (``headroom: 0``) beside the study's
+# setting (default 0.5 decade), to show what the headroom buys.
 PLAIN = 0.0
 
 _WORKER: dict = {}
@@ -183,9 +183,9 @@ def _online_ratio(curves: list[np.ndarray], good: np.ndarray, first: int, rank: 
     It knows which curves are good, but it has nothing to compare with until ``rank`` good
     curves have finished: until then every curve runs in full (it could be the best so far);
     afterwards good curves run in full and the others stop at ``first``.  Trials start in the
-    replay's order (:func:`searcher.search.replay_order`).
+    replay's order (:func:`searcher.testing.replay_order`).
     """
-    from searcher.search import replay_order
+    from searcher.testing import replay_order
 
     budget = max(c.size for c in curves)
     spent, finished_good = 0, 0
@@ -200,20 +200,20 @@ def _online_ratio(curves: list[np.ndarray], good: np.ndarray, first: int, rank: 
 
 
 def _bench_one(curves, good, note, *, max_epochs: int, min_epochs: int, rank: int,
-               threshold: float, margin: float, eta: int, seed: int) -> dict:
-    from searcher.search import compare_pruners, replay_pruners
+               margin: float, headroom: float, eta: int, seed: int) -> dict:
+    from searcher.testing import compare_pruners, replay_pruners
 
     factories = replay_pruners(max_epochs, min_epochs=min_epochs, warmup=min_epochs - 1,
-                               eta=eta, threshold=threshold, rank=rank, margin=margin,
-                               margins=(PLAIN,) if margin != PLAIN else ())
+                               eta=eta, margin=margin, rank=rank, headroom=headroom,
+                               headrooms=(PLAIN,) if headroom != PLAIN else ())
     results = compare_pruners(curves, factories, good=good, seed=seed)
     table = {r.pruner: r.summary() for r in results}
     goals = {name: bool(row["epochs_ratio"] <= 1 / 3 and row["best_ratio"] <= 1.1
                         and row["wrongly_pruned_rate"] <= 0.05)
-             for name, row in table.items() if name.startswith("curve_fit")}
+             for name, row in table.items() if name.startswith("outlook")}
     return {"pruners": table, "curves": len(curves), "epochs": max_epochs,
-            "settings": {"min_epochs": min_epochs, "rank": rank, "threshold": threshold,
-                         "eta": eta, "order_seed": seed, "margin": margin},
+            "settings": {"min_epochs": min_epochs, "rank": rank, "margin": margin,
+                         "eta": eta, "order_seed": seed, "headroom": headroom},
             "crossing_pairs": crossing_pairs(curves, min_epochs),
             "clairvoyant_epochs_ratio": _clairvoyant_ratio(curves, good, min_epochs),
             "online_epochs_ratio": _online_ratio(curves, good, min_epochs, rank, seed),
@@ -224,12 +224,12 @@ def _bench_one(curves, good, note, *, max_epochs: int, min_epochs: int, rank: in
 def bench_pruners(quick: bool = False, *, study_path: str | Path = "studies/demo.yaml",
                   cache_dir: str | Path = TRUTH_DIR, workers: int = 2, n: int | None = None,
                   epochs: int | None = None, log=None) -> dict:
-    """Replay none / median / Hyperband / curve_fit on every benchmark configuration.
+    """Replay none / median / Hyperband / outlook on every benchmark configuration.
 
     Configurations: ``demo`` (ground truth of the study's space), ``demo_warmup`` (the same
     configs with a learning-rate warm-up over a third of the budget: slow starters) and
     ``crossing`` (synthetic crossing curves, 6 slow starters among 60, 30 epochs).  Pruner
-    settings come from the study's ``search.pruner`` (min_epochs, eta, threshold, rank).
+    settings come from the study's ``search.pruner`` (min_epochs, eta, margin, rank, headroom).
 
     Args:
         quick: 16 configs x 8 epochs instead of 60 x the study's budget.
@@ -244,7 +244,7 @@ def bench_pruners(quick: bool = False, *, study_path: str | Path = "studies/demo
         good_size}}, "crossing_pairs", "clairvoyant_epochs_ratio", "goal_met", "notes", ...},
         "call_cost": {...}}``.
     """
-    from searcher.search import crossing_curves, measure_call_cost
+    from searcher.testing import crossing_curves, measure_call_cost
     from searcher.spec import load_study
 
     study = load_study(study_path)
@@ -252,8 +252,8 @@ def bench_pruners(quick: bool = False, *, study_path: str | Path = "studies/demo
     n = n or (16 if quick else 60)
     budget = epochs or (8 if quick else int(study.fixed()["training"]["epochs"]))
     min_epochs = min(int(pcfg["min_epochs"]), budget - 1)
-    opts = dict(rank=int(pcfg["rank"]), threshold=float(pcfg["threshold"]),
-                margin=float(pcfg["margin"]),
+    opts = dict(rank=int(pcfg["rank"]), margin=float(pcfg["margin"]),
+                headroom=float(pcfg["headroom"]),
                 eta=int(pcfg["eta"]), seed=0)
     out: dict = {}
     variants = {"demo": None,
@@ -289,12 +289,12 @@ def bench_pruners(quick: bool = False, *, study_path: str | Path = "studies/demo
 
 def format_bench_pruners(result: dict) -> str:
     """Plain-text tables of :func:`bench_pruners`, one block per configuration."""
-    from searcher.search import format_replay_table
+    from searcher.testing import format_replay_table
 
     lines = []
     for name, row in result.items():
         if name == "call_cost":
-            lines.append(f"curve_fit cost per call ({row['points']} epochs): median "
+            lines.append(f"outlook cost per call ({row['points']} epochs): median "
                          f"{row['median_ms']:.1f} ms, max {row['max_ms']:.1f} ms")
             continue
         lines.append(f"[{name}]")

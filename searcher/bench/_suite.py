@@ -122,7 +122,7 @@ def _loop_root() -> Path:
 
 
 def _analysis(plan: dict) -> float:
-    from searcher.analysis import bench_analysis_10k
+    from ._analysis import bench_analysis_10k
 
     return bench_analysis_10k(n=int(plan["analysis_n"]))
 

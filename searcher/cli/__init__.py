@@ -24,11 +24,22 @@ EPILOG = """examples:
 """
 
 
+def _version() -> str:
+    """The installed package's version (pyproject.toml), or "unknown" for a bare checkout."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("searcher")
+    except PackageNotFoundError:
+        return "unknown (not installed)"
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="searcher",
         description="Search manager for E(3)-equivariant graph networks on physics fields.",
         epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--version", action="version", version=f"searcher {_version()}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name in COMMANDS:
         importlib.import_module(f"searcher.cli._{name}").register(sub)

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import argparse
 import json
+from pathlib import Path
 
 from searcher.errors import UserError
 from searcher.spec import load_study
@@ -26,8 +27,13 @@ def _short(value) -> str:
 
 def _gate(study, configs: list[dict]) -> list[dict]:
     # models imports torch and e3nn; only --gate pays for that
-    from searcher.models import gate_samples
+    from searcher.cli._gating import gate_samples
     return gate_samples(study, configs)
+
+
+def _limit(value, limit, spec: str) -> str:
+    # a value beside its guard: "41210 / 60000", "/ -" when the guard sets no limit
+    return f"{_cell(value, spec)} / {format(limit, spec) if limit else '-'}"
 
 
 def _human(study, samples: list[dict], gates: list[dict]) -> None:
@@ -49,12 +55,30 @@ def _human(study, samples: list[dict], gates: list[dict]) -> None:
         for name in derived:
             print(f"          {name}={_short(_get(cfg, name))} (derived)")
     if gates:
-        print(f"\n{'sample':>6}  {'params':>8}  {'equiv. error f64':>16}  {'f32':>9}  passed  reason")
+        print(f"\n{'sample':>6}  {'params / guard':>17}  {'madds/epoch / guard':>21}  "
+              f"{'step ms':>7}  {'trial s / limit':>15}  {'equiv. error f64':>16}  {'f32':>9}  "
+              "passed  within guard  reason")
         for i, g in enumerate(gates, 1):
-            print(f"{i:>6}  {_cell(g.get('params'), 'd'):>8}  "
+            guard = g["guard"]
+            fit = {True: "yes", False: "NO", None: "-"}[g.get("within_guard")]
+            print(f"{i:>6}  {_limit(g.get('params'), guard['max_params'], 'd'):>17}  "
+                  f"{_limit(g.get('madds_per_epoch'), guard['max_cost'], '.3g'):>21}  "
+                  f"{_cell(g.get('step_ms'), '.1f'):>7}  "
+                  f"{_limit(g.get('trial_seconds'), guard['time_limit'], '.3g'):>15}  "
                   f"{_cell(g.get('equivariance_error'), '.3e'):>16}  "
                   f"{_cell(g.get('equivariance_error_f32'), '.2e'):>9}  "
-                  f"{'yes' if g.get('passed') else 'NO':>6}  {g.get('reason', '')}")
+                  f"{'yes' if g.get('passed') else 'NO':>6}  {fit:>12}  {g.get('reason', '')}")
+
+
+def _check_source(study) -> None:
+    # The spec does not look at the disk (a finished study can be analysed after its data
+    # moved); check is where a wrong path should show, before any run.
+    source = study.fixed()["task"]["source"]
+    if source != "demo" and not Path(source).exists():
+        raise UserError([study.locate(
+            f"data source {source!r} does not exist (looked for {Path(source).resolve()}; "
+            "paths are relative to the folder searcher runs in); allowed: \"demo\", a "
+            ".npz/.vtu/.vtp/.vtk file or a folder of them", "task.source")])
 
 
 def _cell(value, spec: str) -> str:
@@ -75,6 +99,7 @@ def _run(args) -> int:
                                    path=f"--{key}")
     try:
         study = load_study(args.study)
+        _check_source(study)
     except UserError as err:
         if not args.json:
             raise
@@ -82,7 +107,8 @@ def _run(args) -> int:
                           "errors": [p.to_dict() for p in err.problems]}, indent=2))
         return 2
     seed = study.fixed()["search"]["seed"] if args.seed is None else args.seed
-    samples = study.sample(args.samples, seed=seed)
+    # --gate K gates K candidates, drawing more than --samples when it asks for more
+    samples = study.sample(max(args.samples, args.gate), seed=seed)
     gates = _gate(study, samples[:args.gate]) if args.gate else []
     if args.json:
         rows = [dict(cfg) for cfg in samples]
@@ -113,5 +139,8 @@ def register(sub) -> None:
     parser.add_argument("--seed", type=int, default=None,
                         help="sampling seed (default: the study's search.seed)")
     parser.add_argument("--gate", type=int, default=0, metavar="K",
-                        help="run the equivariance gate and cost model on the first K samples")
+                        help="run the equivariance gate and the cost model on K samples (the "
+                             "first K; more are drawn when K exceeds --samples) and compare "
+                             "their parameters, multiply-adds and step time with search.guard "
+                             "and training.time_limit")
     parser.set_defaults(handler=_run)

@@ -25,6 +25,9 @@ def _run(args) -> int:
         # losses are positive: a NaN, infinite or non-positive target makes every hit moot
         raise UserError.single(f"must be a finite positive loss, but got {args.target}",
                                path="--target")
+    if len(args.studies) < 2:   # said before any store is opened
+        raise UserError.single(f"compare needs two or more study files, but got "
+                               f"{len(args.studies)}", path="STUDY")
     studies = [load_study(path) for path in args.studies]
     pairs = [(s, read_store(s)) for s in studies]
     out = output_folder(args.out, studies[0], "analysis", "compare")

@@ -11,7 +11,7 @@ import yaml
 
 __all__ = ["register"]
 
-EXPORT_HELP = """Writes one NPZ file per graph, graph_0000.npz, ... in DIR:
+EXPORT_HELP = """Writes one NPZ file per graph, graph_0000.npz, ... in the --out folder:
   pos                 [N, 3] probe positions (world frame, not centred)
   velocity            [N, 3]     vector
   pressure            [N]        scalar
@@ -25,18 +25,38 @@ an optional edge_index [2, E] (row 0 source, row 1 destination), used with task.
 """
 
 
+def _inspect_help() -> str:
+    from searcher.spec import FIELD_KINDS
+
+    kinds = "\n".join(f"  {kind:<28}{irreps}" for kind, irreps in FIELD_KINDS.items())
+    return ("field kinds (task.fields.<name>.kind) and their irreps:\n" + kinds + """
+file data:
+  .npz   one graph per file: pos [N, 3], one Cartesian array per field, optional
+         edge_index [2, E] and a JSON header (see `searcher data export --help`)
+  .vtu/.vtp/.vtk (read with meshio): point_data arrays are node fields, field_data arrays
+         graph fields; task.fields must declare their kinds; with task.mesh_edges the edges
+         join every pair of vertices that share a cell
+  a folder is one dataset: its data files in name order, one graph each
+SOURCE may also be a study file: its task section (and its task.source) is inspected.
+""")
+
+
 def register(subparsers) -> None:
     parser = subparsers.add_parser(
         "data", help="inspect a dataset or export the demo flows",
         description="Inspect a dataset or export the demo flows.",
         formatter_class=argparse.RawDescriptionHelpFormatter,
         epilog="examples:\n"
-               "  searcher data inspect demo                    fields, irreps, graphs, splits\n"
+               "  searcher data inspect studies/demo.yaml       the demo study's data\n"
+               "  searcher data inspect demo                    the built-in demo defaults\n"
                "  searcher data inspect runs/flows/ --study my.yaml --json\n"
                "  searcher data export demo --graphs 8 --seed 1 --out demo-npz/")
     sub = parser.add_subparsers(dest="data_command", metavar="ACTION", required=True)
-    ins = sub.add_parser("inspect", help="fields, kinds, irreps, graph stats and split sizes")
-    ins.add_argument("source", help="'demo', a data file (.npz/.vtu/.vtp/.vtk) or a folder")
+    ins = sub.add_parser("inspect", help="fields, kinds, irreps, graph stats and split sizes",
+                         epilog=_inspect_help(),
+                         formatter_class=argparse.RawDescriptionHelpFormatter)
+    ins.add_argument("source", help="a study file (.yaml: its data), 'demo' (the built-in "
+                     "defaults), a data file (.npz/.vtu/.vtp/.vtk) or a folder")
     ins.add_argument("--study", help="study YAML whose task section (graph rule, fields, "
                      "splits) applies")
     ins.add_argument("--json", action="store_true", help="print one JSON object")
@@ -47,11 +67,17 @@ def register(subparsers) -> None:
     exp.add_argument("--graphs", type=int, default=8, help="number of flow samples (default 8)")
     exp.add_argument("--seed", type=int, default=0, help="generator seed (default 0)")
     exp.add_argument("--study", help="study YAML whose task.demo settings apply")
-    exp.add_argument("--out", required=True, help="output folder")
+    exp.add_argument("--out", required=True, metavar="FOLDER", help="output folder")
     exp.set_defaults(handler=_export)
 
 
 def _task(args) -> dict:
+    if args.source.endswith((".yaml", ".yml")) and not args.study:  # a study: its own data
+        from searcher.spec import load_study
+
+        task = copy.deepcopy(load_study(args.source).fixed()["task"])
+        args.study, args.source = args.source, task["source"]
+        return task
     if args.study:
         from searcher.spec import load_study
 
@@ -90,6 +116,9 @@ def _inspect(args) -> int:
     print("stress  " + ("  ".join(f"{k} {v}" for k, v in s["stress"].items()) or "none"))
     for line in s["stress_notes"] + report["warnings"]:
         print(f"note    {line}")
+    if args.source == "demo" and not args.study:
+        print("note    these are the built-in demo settings (defaults.yaml), not a study's; "
+              "name a study file to see its data: searcher data inspect studies/demo.yaml")
     return 0
 
 

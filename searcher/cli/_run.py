@@ -13,7 +13,9 @@ EPILOG = """examples:
   searcher run studies/demo.yaml --storage postgresql://me@db.lab/searches
 
 Ctrl-C (or SIGTERM) lets every worker finish its current epoch; those trials are recorded
-as interrupted and re-queued when the same command runs again. Exit code 130 after SIGINT,
+as interrupted and re-queued when the same command runs again. A store made from another
+search space (the file changed, or two files share a study name) is refused unless
+--new-space is given. Exit code 130 after SIGINT,
 143 after SIGTERM, 0 when the budget or the deadline was reached.
 """
 
@@ -34,7 +36,7 @@ def _handle(args: argparse.Namespace) -> int:
     study = load_study(args.study)
     summary = run_study(study, workers=args.workers, trials=args.trials, hours=args.hours,
                         until=args.until, storage=args.storage, out=args.out,
-                        live=False if args.plain else None)
+                        live=False if args.plain else None, new_space=args.new_space)
     for note in summary.notes:
         print(note)
     for line in where_lines(summary):
@@ -59,4 +61,8 @@ def register(sub) -> None:
                    help="Optuna storage URL (default: journal file in the output folder)")
     p.add_argument("--out", default=None, metavar="DIR", help="output folder")
     p.add_argument("--plain", action="store_true", help="plain progress lines, no live panel")
+    p.add_argument("--new-space", action="store_true",
+                   help="the study file's search space changed since the store was made: add "
+                        "trials from the new space beside the old ones (without it, run "
+                        "refuses with exit 2)")
     p.set_defaults(handler=_handle)

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import sys
 
 from searcher.spec import load_study
 
@@ -11,6 +12,8 @@ __all__ = ["register"]
 EPILOG = """examples:
   searcher status studies/demo.yaml
   searcher status studies/demo.yaml --json
+
+Exit code 1 when the study has never run (nothing stored yet).
 """
 
 
@@ -34,6 +37,14 @@ def _handle(args: argparse.Namespace) -> int:
     from searcher.search import study_status
 
     status = study_status(load_study(args.study), args.storage, out=args.out)
+    if not status["stored"]:
+        # a store path that does not exist would read as if the study lived there
+        if args.json:
+            print(json.dumps(status, indent=2, default=str))
+        print(f"study {status['study']} has never run: no trials are stored (expected at "
+              f"{status['storage']}); start it with `searcher run {args.study}`",
+              file=sys.stderr)
+        return 1
     if args.json:
         print(json.dumps(status, indent=2, default=str))
     else:

@@ -1,14 +1,14 @@
 """Models: irreps helpers, radial bases, attributes, blocks, families, gate, cost model.
 
 Public API (DEVELOPERS.md, "Contracts/models"): :func:`build_model`, :func:`run_gate`
-(:class:`GateResult`), :func:`estimate_cost` (:class:`Cost`), :func:`gate_samples`; plus
+(:class:`GateResult`), :func:`estimate_cost` (:class:`Cost`); plus
 the registries (:data:`FAMILIES`, :data:`RADIAL_BASES`, :data:`ENVELOPES`,
 :data:`ACTIVATIONS`), :func:`attach_geometry` for cached edge geometry and
 :func:`random_graph` for probe graphs.
 """
 from searcher.models._base import FAMILIES, FieldModel
 from searcher.models._build import build_model
-from searcher.models._cost import Cost, count_madds, estimate_cost, gate_samples
+from searcher.models._cost import Cost, count_madds, estimate_cost
 from searcher.models._build_cache import clear as clear_build_cache
 from searcher.models._gate import (GateResult, default_dtype, forget_verdicts, gate_function,
                                    gate_model, run_gate)
@@ -22,7 +22,7 @@ __all__ = [
     "ACTIVATIONS", "Cost", "ENVELOPES", "EdgeContext", "FAMILIES", "FieldModel", "GateResult",
     "Geometry", "RADIAL_BASES", "RadialEmbedding", "Registry", "attach_geometry",
     "build_model", "clear_caches", "count_madds", "default_dtype", "estimate_cost", "gate_function", "gate_model",
-    "gate_samples", "graph_from", "hidden_irreps", "radius_edges", "random_graph", "run_gate",
+    "graph_from", "hidden_irreps", "radius_edges", "random_graph", "run_gate",
     "unreachable_irreps",
 ]
 

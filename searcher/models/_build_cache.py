@@ -38,7 +38,7 @@ from contextlib import contextmanager
 import torch
 from torch import fx
 
-from ._fused import fusable_paths
+from ._fusable import fusable_paths
 
 __all__ = ["install", "cache_info", "clear", "lean_codegen", "unfused", "stored_plan"]
 

@@ -29,14 +29,10 @@ from e3nn import nn as enn
 from e3nn import o3
 from torch_geometric.data import Batch
 
-from searcher.data import build_dataset, describe_fields, graph_stats
-from searcher.errors import UserError
 
-from ._build import build_model
-from ._gate import run_gate
 from ._probe import random_graph
 
-__all__ = ["Cost", "count_madds", "estimate_cost", "gate_samples", "tensor_product_madds"]
+__all__ = ["Cost", "count_madds", "estimate_cost", "tensor_product_madds"]
 
 
 @dataclass
@@ -160,57 +156,3 @@ def estimate_cost(model: torch.nn.Module, stats: dict, *, batch_size: int = 8,
     epoch = (per_edge * edges + per_node * nodes) * float(stats.get("graphs", 0)) * 3
     ms = _step_ms(model, _probe_batch(model, stats, batch_size), repeats) if repeats else None
     return Cost(sum(p.numel() for p in model.parameters()), per_edge, per_node, epoch, ms)
-
-
-def _demo_stats(task: dict) -> dict:
-    # Estimated without generating data: probes per sample and the graph rule.  The radius
-    # rule counts the expected neighbours in a ball inside the probe cube, ignoring the
-    # cube's faces (an overestimate near the boundary).
-    demo, graph = task["demo"], task["graph"]
-    nodes = int(task["fidelity"]["probes"] or demo["probes"])
-    if graph["rule"] == "neighbours":
-        degree = float(graph["neighbours"])
-    else:
-        ball = 4 / 3 * math.pi * float(graph["radius"]) ** 3
-        degree = (nodes - 1) * ball / (2 * float(demo["region"])) ** 3
-    degree = min(degree, nodes - 1, graph["edge_cap"] or nodes)
-    graphs = round(demo["samples"] * task["split"]["fractions"][0]
-                   * task["fidelity"]["train_fraction"])
-    return {"graphs": max(1, graphs), "nodes_mean": nodes, "edges_mean": nodes * degree,
-            "degree_mean": degree}
-
-
-def _file_stats(study, task: dict) -> dict:
-    ds = build_dataset(task, cache_dir=study.output_dir / "cache")
-    stats = graph_stats([ds.graphs[i] for i in ds.split["train"]])
-    stats["graphs"] = max(1, round(stats["graphs"] * task["fidelity"]["train_fraction"]))
-    return stats
-
-
-def gate_samples(study, configs: list[dict]) -> list[dict]:
-    """Gate and cost of each resolved config, for ``searcher check --gate``.
-
-    Returns one dict per config with ``params, equivariant, equivariance_error,
-    equivariance_error_f32, second_check_error, passed, reason, madds_per_epoch,
-    madds_per_edge, madds_per_node, step_ms``; a config whose model cannot be built is
-    recorded as not passed with the problem as its reason.
-    """
-    out = []
-    for cfg in configs:
-        task = cfg["task"]
-        fields = describe_fields(task)
-        target = next(f.name for f in fields.values() if f.role == "target")
-        stats = _demo_stats(task) if task["source"] == "demo" else _file_stats(study, task)
-        try:
-            gate = run_gate(cfg["model"], fields, target, seed=int(cfg["training"]["seed"]),
-                            stats=stats)
-            model = build_model(cfg["model"], fields, target, stats=stats)
-        except UserError as exc:
-            out.append({"params": None, "equivariant": None, "equivariance_error": None,
-                        "equivariance_error_f32": None, "second_check_error": None,
-                        "passed": False, "reason": str(exc), "madds_per_epoch": None,
-                        "madds_per_edge": None, "madds_per_node": None, "step_ms": None})
-            continue
-        cost = estimate_cost(model, stats, batch_size=int(cfg["training"]["batch_size"]))
-        out.append({**gate.to_dict(), **cost.to_dict()})
-    return out

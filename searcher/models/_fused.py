@@ -39,17 +39,10 @@ from collections import OrderedDict
 import torch
 from e3nn import o3
 
+from ._build_cache import stored_plan
+from ._fusable import fusable_paths
+
 __all__ = ["FusedProduct", "FusedLinear", "fuse_products", "fusable", "fusable_paths"]
-
-_MODES = ("uvw", "uvu")
-
-
-def fusable_paths(instructions) -> bool:
-    """Whether the fused kernel can evaluate these e3nn instructions: at least one live
-    path, and every live path ``uvw``/``uvu`` with weights."""
-    live = [ins for ins in instructions if ins.path_weight != 0 and 0 not in ins.path_shape]
-    return bool(live) and all(ins.connection_mode in _MODES and ins.has_weight for ins in live)
-
 
 def fusable(tp: torch.nn.Module) -> bool:
     """Whether :func:`fuse_products` can switch ``tp``: a plain ``o3.TensorProduct`` or
@@ -314,8 +307,6 @@ def fuse_products(model: torch.nn.Module) -> int:
 
 
 def _plan(tp: o3.TensorProduct) -> FusedProduct:
-    from ._build_cache import stored_plan  # not at the top: _build_cache imports this module
-
     key = (str(tp.irreps_in1), str(tp.irreps_in2), str(tp.irreps_out),
            tuple(tp.instructions), bool(tp.shared_weights))
     return stored_plan(key, lambda: FusedProduct(tp))

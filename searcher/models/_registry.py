@@ -10,6 +10,7 @@ from typing import Callable, Generic, TypeVar
 import torch
 
 from searcher.errors import UserError
+from searcher.options import REGISTERED, declared
 
 __all__ = ["Registry", "ACTIVATIONS", "activation"]
 
@@ -37,6 +38,9 @@ class Registry(Generic[T]):
         self._items: dict[str, T] = {}
 
     def register(self, name: str) -> Callable[[T], T]:
+        if self.key in REGISTERED:      # the study language must know every name offered
+            declared(self.key, name)
+
         def deco(obj: T) -> T:
             self._items[name] = obj
             return obj

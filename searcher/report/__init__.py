@@ -14,7 +14,7 @@ from searcher.report._finalists import BASELINES, Candidate, choose_finalists
 from searcher.report._pick import decide, paired_errors
 from searcher.report._plots import PLOTS, render_plots
 from searcher.report._provenance import git_commit, now_utc, package_versions, provenance
-from searcher.report._rerun import headline_error, inference_ms_per_1k_nodes, measure, retrain
+from searcher.report._finalist_measure import headline_error, inference_ms_per_1k_nodes, measure, retrain
 from searcher.report._sections import SECTION_TITLES, fmt, sections
 from searcher.report._stats import (BCA_MIN_SEEDS, WEAK_TRANSFER, Interval, Outperform,
                                     RankStability, Transfer, kendall_w, p_outperform,

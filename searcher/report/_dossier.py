@@ -78,7 +78,7 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
     from searcher.report._export import export_choice
     from searcher.report._finalists import choose_finalists
     from searcher.report._provenance import now_utc, provenance
-    from searcher.report._rerun import retrain
+    from searcher.report._finalist_measure import retrain
     from searcher.report._tracking import DossierTracker
     from searcher.report._writers import FILES, plot_files, write_dossier
     from searcher.search import public_config, read_store, storage_label

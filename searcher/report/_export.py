@@ -43,7 +43,8 @@ def choice_study(config: dict, *, name: str, summary: str) -> dict:
 
     A relative data path is made absolute (the data layer reads it from the working
     folder), so the file still works when read from the dossier folder; a storage or
-    tracking URL holding a password is cleared.
+    tracking URL holding a password is cleared; the pruner's epoch budget is cut to the
+    exported ``training.epochs`` so that ``searcher check`` accepts the file.
     """
     out = copy.deepcopy(config)
     out["study"]["name"] = name
@@ -54,6 +55,11 @@ def choice_study(config: dict, *, name: str, summary: str) -> dict:
     for section, key in (("search", "storage"), ("tracking", "uri")):
         if mask_url(out[section][key]) != out[section][key]:
             out[section][key] = ""
+    # The pruner's budget must fit in a run of the exported length (a dossier may re-train
+    # with fewer epochs than the search did); the pruner plays no part in the weights.
+    pruner, epochs = out["search"]["pruner"], int(out["training"]["epochs"])
+    pruner["max_epochs"] = min(int(pruner["max_epochs"]), epochs)
+    pruner["min_epochs"] = min(int(pruner["min_epochs"]), pruner["max_epochs"])
     source = out["task"]["source"]
     if source != "demo" and not Path(source).is_absolute():
         out["task"]["source"] = str(Path(source).resolve())

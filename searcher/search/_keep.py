@@ -10,7 +10,7 @@ from pathlib import Path
 
 from searcher.train import save_weights
 
-from ._outcomes import ranked_values
+from searcher.outcomes import ranked_values
 
 __all__ = ["keep_best", "checkpoint_path"]
 

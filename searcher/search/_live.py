@@ -10,7 +10,7 @@ from __future__ import annotations
 import sys
 import time
 
-from ._outcomes import best_record, finished, outcome_of, tally
+from searcher.outcomes import best_record, finished, outcome_of, tally
 
 __all__ = ["Monitor", "config_line"]
 

@@ -23,7 +23,7 @@ import optuna
 from optuna.storages._heartbeat import is_heartbeat_enabled
 from optuna.trial import TrialState
 
-from ._outcomes import outcome_of
+from searcher.outcomes import outcome_of
 
 __all__ = ["recover", "settle", "process_alive", "HOST"]
 

@@ -17,7 +17,7 @@ Pruners see one step per epoch, counted from 1 (``trial.report(val_loss, epoch)`
 * ``halving``: SuccessiveHalvingPruner(min_resource=min_epochs, reduction_factor=eta);
 * ``hyperband``: HyperbandPruner(min_resource=min_epochs, max_resource=max_epochs,
   reduction_factor=eta) (Li et al., JMLR 2018);
-* ``curve_fit``: our learning-curve extrapolation pruner (``CurveFitPruner``).
+* ``outlook``: our learning-curve extrapolation pruner (:class:`~searcher.search.pruners.OutlookPruner`).
 
 ``grid`` enumerates the discrete part of the space (choices and whole-number ranges, every
 step); a real-valued dimension takes :data:`GRID_REAL_POINTS` evenly spaced values (in log
@@ -33,6 +33,7 @@ from typing import Callable
 import optuna
 
 from searcher.errors import UserError
+from searcher.options import declared
 
 __all__ = ["SAMPLERS", "PRUNERS", "make_sampler", "make_pruner", "sampler_seed",
            "register_sampler", "register_pruner", "SEED_STRIDE", "MIN_FINISHED",
@@ -47,7 +48,10 @@ PRUNERS: dict[str, Callable] = {}
 
 
 def register_sampler(name: str):
-    """Decorator: ``fn(study, cfg: search.sampler, seed) -> BaseSampler`` under ``name``."""
+    """Decorator: ``fn(study, cfg: search.sampler, seed) -> BaseSampler`` under ``name``
+    (declared in :mod:`searcher.options`)."""
+    declared("search.sampler.kind", name)
+
     def deco(fn):
         SAMPLERS[name] = fn
         return fn
@@ -55,7 +59,10 @@ def register_sampler(name: str):
 
 
 def register_pruner(name: str):
-    """Decorator: ``fn(cfg: search.pruner) -> BasePruner`` under ``name``."""
+    """Decorator: ``fn(cfg: search.pruner) -> BasePruner`` under ``name`` (declared in
+    :mod:`searcher.options`)."""
+    declared("search.pruner.kind", name)
+
     def deco(fn):
         PRUNERS[name] = fn
         return fn
@@ -183,13 +190,13 @@ def _hyperband(cfg):
         reduction_factor=int(cfg["eta"]), bootstrap_count=0)
 
 
-@register_pruner("curve_fit")
-def _curve_fit(cfg):
-    from ._curve_fit import CurveFitPruner
+@register_pruner("outlook")
+def _outlook(cfg):
+    from .pruners import OutlookPruner
 
-    return CurveFitPruner(min_epochs=int(cfg["min_epochs"]), max_epochs=int(cfg["max_epochs"]),
-                          threshold=float(cfg["threshold"]), rank=int(cfg["rank"]),
-                          margin=float(cfg["margin"]))
+    return OutlookPruner(min_epochs=int(cfg["min_epochs"]), max_epochs=int(cfg["max_epochs"]),
+                         margin=float(cfg["margin"]), rank=int(cfg["rank"]),
+                         headroom=float(cfg["headroom"]))
 
 
 def make_pruner(cfg: dict, *, file: str = "") -> optuna.pruners.BasePruner:

@@ -97,7 +97,7 @@ class _Signals:
 def run_study(study, *, workers: int | None = None, trials: int | None = None,
               hours: float | None = None, until: str | None = None,
               storage: str | None = None, out: str | Path | None = None,
-              live: bool | None = None, echo=print) -> RunSummary:
+              live: bool | None = None, echo=print, new_space: bool = False) -> RunSummary:
     """Run (or continue) a study until its budget, deadline or a signal.
 
     Args:
@@ -111,6 +111,8 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
         out: output folder overriding the study's.
         live: rich live panel (default: when stdout is a terminal); else plain lines.
         echo: where plain progress lines go.
+        new_space: add trials to a store whose study was made from another space (else a
+            changed space is refused; see :func:`open_store`).
 
     Returns:
         A :class:`RunSummary`.
@@ -118,7 +120,7 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
     from searcher.data import build_dataset
 
     from ._live import Monitor
-    from ._outcomes import best_record, tally
+    from searcher.outcomes import best_record, tally
     from ._recover import recover
     from ._store import open_store, storage_down, storage_label
     from ._tracking import prepare_tracking
@@ -150,9 +152,14 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
     deadline = deadline_of(hours if hours is not None else search["budget"]["hours"],
                            until if until is not None else search["budget"]["until"], start)
     ensure_folder(output_dir, **where)
-    build_dataset(cfg["task"], cache_dir=output_dir / "cache")
-    opt = open_store(study, storage)
-    notes = []
+    opt = open_store(study, storage, new_space=new_space)   # a changed space stops here
+    with warnings.catch_warnings(record=True) as caught:
+        # the data's own warnings (isolated nodes, ...) become one note each, printed once
+        # by the caller, not a Python warning per process
+        warnings.simplefilter("always", UserWarning)
+        build_dataset(cfg["task"], cache_dir=output_dir / "cache")
+    notes = list(dict.fromkeys(f"data: {w.message}" for w in caught
+                               if issubclass(w.category, UserWarning)))
     lost, queued = recover(opt)
     if lost or queued:
         notes.append(f"recovered {lost} lost trial(s), re-queued {queued} interrupted one(s)")

@@ -17,11 +17,12 @@ def study_status(study, storage: str | None = None, *, out: str | Path | None = 
         out: output folder overriding the study's.
 
     Returns:
-        ``{"study", "storage" (password masked), "output_dir", "n_trials", "counts" (outcome
+        ``{"study", "storage" (password masked), "output_dir", "stored" (False when the store
+        holds no such study: it never ran), "n_trials", "counts" (outcome
         → int, plus running/waiting), "states" (Optuna state name → int), "best" ({number,
         value, config} or None), "cpu_seconds"}``.
     """
-    from ._outcomes import best_record, tally
+    from searcher.outcomes import best_record, tally
     from ._store import read_store, storage_label
 
     if out is not None:
@@ -33,7 +34,7 @@ def study_status(study, storage: str | None = None, *, out: str | Path | None = 
     for t in trials:
         states[t.state.name] += 1
     return {"study": study.name, "storage": label, "output_dir": str(study.output_dir),
-            "n_trials": len(trials), "counts": tally(trials), "states": states,
+            "stored": opt is not None, "n_trials": len(trials), "counts": tally(trials), "states": states,
             "best": best_record(trials),
             "cpu_seconds": float(sum(float(t.user_attrs.get("cpu_seconds") or 0.0)
                                      for t in trials))}

@@ -205,7 +205,7 @@ def read_store(study, storage: str | None = None, *, required: bool = True):
 
 
 def open_store(study, storage: str | None = None, *, worker: int = 0,
-               origin: str = "") -> optuna.Study:
+               origin: str = "", new_space: bool = False) -> optuna.Study:
     """The Optuna study of ``study`` (created on first use), with its sampler and pruner.
 
     Args:
@@ -213,6 +213,13 @@ def open_store(study, storage: str | None = None, *, worker: int = 0,
         storage: URL overriding ``search.storage``.
         worker: worker index; it shifts the sampler seed (see ``make_sampler``).
         origin: ``"host:pid"`` mixed into the sampler seed (workers of a shared database).
+        new_space: when the store's study was made from another search space, add trials
+            from the space as it is now (the store then records the new space) instead of
+            refusing.
+
+    Raises:
+        UserError: the store's study was made from a different space and ``new_space`` is
+            False (``searcher run --new-space`` sets it).
 
     Returns:
         An ``optuna.Study`` named ``study.name`` that minimises the validation loss.
@@ -230,8 +237,20 @@ def open_store(study, storage: str | None = None, *, worker: int = 0,
         opt.set_user_attr("study_hash", study.hash)
         opt.set_user_attr("study_file", str(getattr(study, "path", "")))
     elif attrs["study_hash"] != study.hash:
+        old = str(attrs["study_hash"])
+        if not new_space:
+            raise UserError.single(
+                f"the store {storage_label(study, storage)} already holds a study named "
+                f"{study.name!r} made from a different search space (hash {old[:12]}, now "
+                f"{study.hash[:12]}, first written by {attrs.get('study_file') or '?'}); "
+                "give this study a name of its own (study.name) or another output folder "
+                "(--out), or add trials from the new space to the old ones with --new-space",
+                file=str(getattr(study, "path", "")), path="study.name")
         logging.getLogger("searcher").warning(
             "the store's study %r was made from a different search space (hash %s, now %s); "
             "its earlier trials stay and new ones follow the file as it is now",
-            study.name, str(attrs["study_hash"])[:12], study.hash[:12])
+            study.name, old[:12], study.hash[:12])
+        opt.set_user_attr("earlier_hashes", [*attrs.get("earlier_hashes", []), old])
+        opt.set_user_attr("study_hash", study.hash)
+        opt.set_user_attr("study_file", str(getattr(study, "path", "")))
     return opt

@@ -5,7 +5,7 @@ Child: tags ``mlflow.parentRunId``, ``searcher.role=trial``, ``searcher.trial=<n
 params = the flattened resolved config (dotted keys, values as text, at most 500 characters,
 passwords masked); metrics per epoch (step = epoch) sent with ``log_batch`` (at most 1000 items
 a call); at the end tags ``searcher.outcome``, ``searcher.reason``, ``searcher.pruned_at`` and the
-config as ``config.yaml``.
+config as ``config.yaml``.  The tag names are the contract's (:data:`searcher.outcomes.TAGS`).
 
 Several workers (and several ``searcher run`` processes on one machine) write one sqlite file
 at once, so every call is retried with backoff when sqlite says the database is locked.  Any other tracking failure (a bad URI, a server that is
@@ -24,15 +24,14 @@ from pathlib import Path
 
 import yaml
 
+from searcher.outcomes import STUDY_ROLE, TAGS, TRIAL_ROLE
 from searcher.spec import flatten as flatten_config
 
 from ._urls import mask_url, public_config, tracking_uri
 
-__all__ = ["Tracker", "TrackingInfo", "prepare_tracking", "find_study_run", "flatten", "STUDY_ROLE",
-           "TRIAL_ROLE"]
+__all__ = ["Tracker", "TrackingInfo", "prepare_tracking", "find_study_run", "flatten"]
 
 log = logging.getLogger("searcher")
-STUDY_ROLE, TRIAL_ROLE = "study", "trial"
 _MAX_ITEMS = 1000
 _MAX_PARAMS = 100
 _PARAM_CHARS = 500
@@ -118,7 +117,7 @@ class Tracker:
             return ""
         info = self.info
         run = self.call("create_run", info.experiment_id, run_name=run_name, tags={
-            "mlflow.parentRunId": info.parent_run_id, "searcher.study": info.study, **tags})
+            "mlflow.parentRunId": info.parent_run_id, TAGS["study"]: info.study, **tags})
         if run is None:
             return ""
         from mlflow.entities import Param
@@ -130,8 +129,8 @@ class Tracker:
 
     def start_trial(self, number: int, config: dict) -> str:
         """Create the child run of trial ``number``; returns its run id ("" when off)."""
-        return self.start_run(f"trial-{number:04d}", {"searcher.role": TRIAL_ROLE,
-                                                      "searcher.trial": str(number)}, config)
+        return self.start_run(f"trial-{number:04d}", {TAGS["role"]: TRIAL_ROLE,
+                                                      TAGS["trial"]: str(number)}, config)
 
     def log_metrics(self, run_id: str, rows: list[tuple[int, dict]]) -> None:
         """Send ``[(epoch, {name: value})]`` in batches of at most 1000 items."""
@@ -151,9 +150,9 @@ class Tracker:
             return
         from mlflow.entities import RunTag
 
-        tags = {"searcher.outcome": outcome, "searcher.reason": mask_url(reason)[:5000]}
+        tags = {TAGS["outcome"]: outcome, TAGS["reason"]: mask_url(reason)[:5000]}
         if pruned_at is not None:
-            tags["searcher.pruned_at"] = str(pruned_at)
+            tags[TAGS["pruned_at"]] = str(pruned_at)
         tags.update(extra_tags or {})
         self.call("log_batch", run_id, tags=[RunTag(k, v) for k, v in tags.items()])
         if config is not None:
@@ -166,8 +165,8 @@ class Tracker:
 def find_study_run(tracker: Tracker, experiment_id: str, study: str):
     """The oldest parent run of ``study`` in the experiment, or None."""
     runs = tracker.call(
-        "search_runs", [experiment_id], filter_string=f"tags.`searcher.role` = '{STUDY_ROLE}' "
-        f"and tags.`searcher.study` = '{study}'", order_by=["attributes.start_time ASC"],
+        "search_runs", [experiment_id], filter_string=f"tags.`{TAGS['role']}` = '{STUDY_ROLE}' "
+        f"and tags.`{TAGS['study']}` = '{study}'", order_by=["attributes.start_time ASC"],
         max_results=1)
     return runs[0] if runs else None
 
@@ -233,8 +232,8 @@ def _prepare(study, config: dict, output_dir: Path, uri: str) -> TrackingInfo | 
     parent = find_study_run(probe, exp_id, study.name)
     if parent is None and probe.on:
         parent = probe.call("create_run", exp_id, run_name=f"study-{study.name}", tags={
-            "searcher.role": STUDY_ROLE, "searcher.study": study.name,
-            "searcher.study_hash": study.hash, "searcher.summary":
+            TAGS["role"]: STUDY_ROLE, TAGS["study"]: study.name,
+            TAGS["study_hash"]: study.hash, TAGS["summary"]:
             str(config["study"]["summary"])[:500]})
         oldest = find_study_run(probe, exp_id, study.name) if parent is not None else None
         if oldest is not None and oldest.info.run_id != parent.info.run_id:

@@ -1,4 +1,4 @@
-"""One search trial: resolve, gate, guard, train, record (see ``_outcomes`` for states).
+"""One search trial: resolve, gate, guard, train, record (see :mod:`searcher.outcomes` for states).
 
 The trial's user attributes follow the store contract in DEVELOPERS.md (``config``,
 ``study_hash``, ``data_hash``, ``outcome``, ``reason``, ``best_value``, ``best_epoch``,
@@ -27,7 +27,7 @@ from ._registry import SEED_STRIDE
 from ._store import storage_down
 from ._urls import public_config
 
-__all__ = ["TrialRunner", "TrialFailed", "TrialInterrupted", "trial_seed"]
+__all__ = ["TrialRunner", "TrialFailed", "TrialInterrupted", "trial_seed", "guard_check"]
 
 log = logging.getLogger("searcher")
 _FLUSH_SECONDS = 5.0
@@ -46,19 +46,35 @@ def trial_seed(base: int, number: int) -> int:
     return (int(base) + int(number) * SEED_STRIDE) % (2 ** 31)
 
 
+def guard_check(guard: dict, params: float, madds: float) -> tuple[dict, list[str]]:
+    """A candidate's size against ``search.guard``: the one rule ``run`` and ``check`` share.
+
+    Args:
+        guard: the ``search.guard`` mapping (``max_params``, ``max_cost``; 0 = no limit).
+        params: trainable parameters.
+        madds: estimated multiply-adds per epoch.
+
+    Returns:
+        Constraint values ``{"params", "cost"}`` (<= 0 feasible; -1 without a limit) and one
+        reason per exceeded limit.
+    """
+    cons, reasons = {}, []
+    for key, value, limit, label in (("params", params, guard["max_params"], "parameters"),
+                                     ("cost", madds, guard["max_cost"], "multiply-adds/epoch")):
+        limit = float(limit)
+        cons[key] = float(value) / limit - 1.0 if limit > 0 else -1.0
+        if cons[key] > 0:
+            reasons.append(f"{float(value):.4g} {label} exceed the guard of {limit:.4g}")
+    return cons, reasons
+
+
 def _guard(search: dict, gate, cost) -> tuple[dict, str]:
     """Constraint values (<= 0 feasible) and the rejection reason ("" when accepted)."""
     params = float(getattr(cost, "params", 0) or getattr(gate, "params", 0))
     madds = float(getattr(cost, "madds_per_epoch", 0.0))
-    limits = search["guard"]
-    cons = {"gate": 0.0 if gate.passed else 1.0}
-    reasons = [] if gate.passed else [f"equivariance gate: {gate.reason}"]
-    for key, value, limit, label in (("params", params, limits["max_params"], "parameters"),
-                                     ("cost", madds, limits["max_cost"], "multiply-adds/epoch")):
-        limit = float(limit)
-        cons[key] = value / limit - 1.0 if limit > 0 else -1.0
-        if cons[key] > 0:
-            reasons.append(f"{value:.4g} {label} exceed the guard of {limit:.4g}")
+    sized, over = guard_check(search["guard"], params, madds)
+    cons = {"gate": 0.0 if gate.passed else 1.0, **sized}
+    reasons = ([] if gate.passed else [f"equivariance gate: {gate.reason}"]) + over
     return cons, "; ".join(reasons)
 
 

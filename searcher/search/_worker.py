@@ -119,7 +119,7 @@ def _next_step(opt, budget: int) -> str:
     ``done``."""
     import optuna
 
-    from ._outcomes import finished
+    from searcher.outcomes import finished
     from ._recover import HOST, settle
 
     settle(opt)

@@ -7,8 +7,10 @@ budget vs epochs).
 """
 from __future__ import annotations
 
-from searcher.spec._dims import Dimension, Sink, did_you_mean, is_dimension, parse_dimension
-from searcher.spec._rules import RULES, VARYING_SECTIONS, Fields, Fractions, Names
+from searcher.spec._dims import (FORMS, Dimension, Sink, did_you_mean, is_dimension,
+                                 parse_dimension)
+from searcher.spec._rules import (MEANING_NOTES, RENAMED_KEYS, RENAMED_VALUES, RULES,
+                                  VARYING_SECTIONS, Fields, Fractions, Names)
 from searcher.spec._irreps import FIELD_KINDS, task_fields
 
 __all__ = ["check_tree", "check_links", "leaf_paths", "get", "flatten", "condition_values",
@@ -60,12 +62,17 @@ def check_tree(data: dict, defaults: dict, sink: Sink, path: tuple = ()) -> dict
     for key, value in data.items():
         here = path + (key,)
         dotted = ".".join(here)
+        if key not in defaults and dotted in RENAMED_KEYS:
+            sink.add(f"{key!r} was renamed: write {RENAMED_KEYS[dotted]}", here, key=True)
+            continue
         if key not in defaults:
-            near = did_you_mean(key, defaults)
+            # extends is read (and removed) while the files are merged, so add it back here
+            names = [*defaults, "extends"] if not path else list(defaults)
+            near = did_you_mean(key, names)
             if not near:  # a key put in the wrong section: suggest its full path
                 near = did_you_mean(dotted, [p for p in leaf_paths(defaults, path)
                                              if p.rsplit(".", 1)[-1] == key] or ["-"])
-            allowed = ", ".join(defaults) if len(defaults) < 12 else "see searcher/spec/defaults.yaml"
+            allowed = ", ".join(names) if len(names) < 12 else "see searcher/spec/defaults.yaml"
             sink.add(f"unknown key {key!r}{near} (allowed here: {allowed})", here, key=True)
             continue
         default = defaults[key]
@@ -89,8 +96,17 @@ def check_tree(data: dict, defaults: dict, sink: Sink, path: tuple = ()) -> dict
                 dims[dotted] = dim
             continue
         why = rule.problem(value)
-        if why:
-            sink.add(f"got {value!r}; allowed: {why}", here)
+        if isinstance(value, str) and (dotted, value) in RENAMED_VALUES:
+            sink.add(f"{value!r} was renamed: write {RENAMED_VALUES[dotted, value]!r}", here)
+        elif why and isinstance(value, dict):
+            # a mapping where a value belongs: most often a mistyped dimension keyword
+            keys = ", ".join(map(str, value)) or "none"
+            near = "".join(did_you_mean(str(k), FORMS) for k in value)
+            sink.add(f"got a mapping (keys: {keys}); a dimension is a mapping with exactly one "
+                     f"of {', '.join(FORMS)}, and a plain value must be {why}{near}", here)
+        elif why:
+            note = f" ({MEANING_NOTES[dotted]})" if dotted in MEANING_NOTES else ""
+            sink.add(f"got {value!r}; allowed: {why}{note}", here)
         elif isinstance(rule, Fields):
             _check_fields(value, here, sink)
     return dims
@@ -252,16 +268,21 @@ def _check_fields_used(dims: dict, fixed: dict, sink: Sink):
                      ("task", "split", "hold_out"))
 
 
+# Pruners that read search.pruner.min_epochs and max_epochs (searcher.search._registry).
+EPOCH_BUDGET_PRUNERS = ("hyperband", "outlook")
+
+
 def _check_epochs(dims: dict, fixed: dict, sink: Sink):
     epochs = _possible("training.epochs", dims, fixed)
     if epochs is None:
         return
     pruner = fixed["search"]["pruner"]
-    if pruner["max_epochs"] > min(epochs):
+    budgeted = pruner["kind"] in EPOCH_BUDGET_PRUNERS   # the others read no epoch budget
+    if budgeted and pruner["max_epochs"] > min(epochs):
         sink.add(f"max_epochs {pruner['max_epochs']} exceeds training.epochs "
                  f"({min(epochs)} at the least); the pruner budget must fit in a run",
                  ("search", "pruner", "max_epochs"))
-    if pruner["min_epochs"] > pruner["max_epochs"]:
+    if budgeted and pruner["min_epochs"] > pruner["max_epochs"]:
         sink.add(f"min_epochs {pruner['min_epochs']} exceeds max_epochs {pruner['max_epochs']}",
                  ("search", "pruner", "min_epochs"))
     warmup = _possible("training.warmup_epochs", dims, fixed)

@@ -52,6 +52,16 @@ def _bases(doc: Located, file: str, problems: list) -> list[tuple[str, tuple]]:
     return list(zip(items, at))
 
 
+def _without_name(doc: Located) -> Located:
+    """A base file's content without ``study.name``: a study is named by its own file."""
+    study = doc.data.get("study") if isinstance(doc.data, dict) else None
+    if isinstance(study, dict) and "name" in study:
+        doc.data["study"] = {k: v for k, v in study.items() if k != "name"}
+        doc.values.pop(("study", "name"), None)
+        doc.keys.pop(("study", "name"), None)
+    return doc
+
+
 def _load(path: Path, stack: list[Path], problems: list) -> Located:
     try:
         doc = read_yaml(path)
@@ -69,7 +79,7 @@ def _load(path: Path, stack: list[Path], problems: list) -> Located:
         elif not base.is_file():
             problems.append(Problem(f"base file {text!r} not found (looked for {base})", **where))
         else:
-            merged = merge_located(merged, _load(base, stack + [base], problems))
+            merged = merge_located(merged, _without_name(_load(base, stack + [base], problems)))
     return merge_located(merged, doc)
 
 

@@ -1,6 +1,6 @@
 """Declared constraints for every key of ``defaults.yaml`` (validated at one door).
 
-Each key has one rule object; a rule says whether a plain value is allowed (returning what
+Each key has one rule object (the names of registries come from :mod:`searcher.options`); a rule says whether a plain value is allowed (returning what
 *is* allowed when not) and how it looks in JSON Schema.  Cross-key rules (fields named by
 the model, pruner budget vs epochs, reachability) live in ``_checks.py``.
 """
@@ -10,13 +10,16 @@ import math
 import re
 from dataclasses import dataclass
 
+from searcher.options import REGISTERED
 from searcher.spec._irreps import FIELD_KINDS, parse_irreps
 
 __all__ = ["Rule", "Whole", "Real", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
            "Fields", "RULES", "DEMO_FAMILIES", "STRESS_SETS", "EDGE_INVARIANTS",
-           "VARYING_SECTIONS"]
+           "VARYING_SECTIONS", "NAME_PATTERN", "RENAMED_KEYS", "RENAMED_VALUES",
+           "MEANING_NOTES"]
 
 VARYING_SECTIONS = ("model", "training")
+NAME_PATTERN = r"|[A-Za-z0-9_-]+"
 DEMO_FAMILIES = ("abc", "taylor_green", "burgers", "lamb_oseen", "strain", "sphere")
 STRESS_SETS = ("rotated", "reflected", "translated", "unseen_family", "denser", "sparser")
 EDGE_INVARIANTS = ("distance", "speed_jump", "pressure_jump", "radial_velocity")
@@ -211,10 +214,19 @@ class Fields(Rule):
                 "additionalProperties": entry}
 
 
+# Names a study may still carry from before a rename: old dotted key -> what to write now, and
+# (dotted key, old value) -> the new value.  They give a located error naming the new name.
+RENAMED_KEYS = {"search.pruner.threshold": "margin (the chance below which outlook prunes; "
+                                           "the decades above the k-th best are now headroom)"}
+RENAMED_VALUES = {("search.pruner.kind", "curve_fit"): "outlook"}
+# A key whose meaning changed keeps a note for values only the old meaning allowed.
+MEANING_NOTES = {"search.pruner.margin": "margin is the chance below which outlook prunes; "
+                                         "decades above the k-th best are now headroom"}
+
 _POS = Real(0, None, lo_open=True)
 RULES: dict[str, Rule] = {
-    "study.name": Text(r"[A-Za-z0-9_-]+", "a name of letters, digits, '-' and '_' "
-                                           "(it names the output folder)"),
+    "study.name": Text(NAME_PATTERN, "a name of letters, digits, '-' and '_', or \"\" for the "
+                                     "file's name (it names the output folder)"),
     "study.summary": Text(), "study.team": Text(),
     "task.source": Text(r".+", "\"demo\" or a path to data files"),
     "task.demo.samples": Whole(3), "task.demo.probes": Whole(2),
@@ -227,7 +239,7 @@ RULES: dict[str, Rule] = {
     "task.split.hold_out": Names(DEMO_FAMILIES), "task.split.stress": Names(STRESS_SETS),
     "task.split.shift": Real(0),
     "task.fidelity.train_fraction": Real(0, 1, lo_open=True), "task.fidelity.probes": Whole(0),
-    "model.family": OneOf(("steerable", "gated", "node_mlp", "coord_mlp")),
+    "model.family": OneOf(REGISTERED["model.family"]),
     "model.hidden.irreps": Irreps(), "model.hidden.lmax": Whole(0, 8),
     "model.hidden.multiplicity": Whole(1, 1024),
     "model.hidden.taper": OneOf(("uniform", "tapered", "balanced")),
@@ -238,12 +250,13 @@ RULES: dict[str, Rule] = {
     "model.node_attr_field": Text(r"[A-Za-z_][A-Za-z0-9_]*", "a field name"),
     "model.node_inputs": Names(nonempty=True),
     "model.edge_invariants": Names(EDGE_INVARIANTS),
-    "model.radial.basis": OneOf(("gaussian", "bessel", "cosine", "smooth_finite", "fourier")),
+    "model.radial.basis": OneOf(REGISTERED["model.radial.basis"]),
     "model.radial.count": Whole(1, 128), "model.radial.cutoff": _POS,
-    "model.radial.envelope": OneOf(("polynomial", "cosine")), "model.radial.power": Whole(1, 32),
+    "model.radial.envelope": OneOf(REGISTERED["model.radial.envelope"]),
+    "model.radial.power": Whole(1, 32),
     "model.layers": Whole(1, 32), "model.norm": OneOf(("none", "batch", "instance")),
     "model.residual": Flag(), "model.input_products": Flag(), "model.aggregate": OneOf(("sum", "mean", "degree")),
-    "model.activation": OneOf(("silu", "tanh", "gelu", "softplus", "relu")),
+    "model.activation": OneOf(REGISTERED["model.activation"]),
     "model.width": Whole(1, 4096),
     "training.epochs": Whole(1), "training.batch_size": Whole(1),
     "training.optimiser": OneOf(("adam", "adamw")), "training.learning_rate": _POS,
@@ -251,16 +264,15 @@ RULES: dict[str, Rule] = {
     "training.warmup_epochs": Whole(0), "training.clip": Real(0), "training.seed": Whole(0),
     "training.device": OneOf(("cpu", "auto")), "training.time_limit": _POS,
     "training.diverge_factor": Real(1, None, lo_open=True),
-    "search.sampler.kind": OneOf(("tpe", "random", "gp", "cmaes", "qmc", "grid")),
+    "search.sampler.kind": OneOf(REGISTERED["search.sampler.kind"]),
     "search.sampler.startup": Whole(0), "search.sampler.candidates": Whole(1),
     "search.sampler.multivariate": Flag(),
-    "search.pruner.kind": OneOf(("none", "median", "percentile", "halving", "hyperband",
-                                 "curve_fit")),
+    "search.pruner.kind": OneOf(REGISTERED["search.pruner.kind"]),
     "search.pruner.min_epochs": Whole(1), "search.pruner.max_epochs": Whole(1),
     "search.pruner.eta": Whole(2), "search.pruner.percentile": Real(0, 100, True, True),
-    "search.pruner.warmup": Whole(0), "search.pruner.threshold": Real(0, 1, True, True),
+    "search.pruner.warmup": Whole(0), "search.pruner.margin": Real(0, 1, True, True),
     "search.pruner.rank": Whole(1),
-    "search.pruner.margin": Real(0, 6),
+    "search.pruner.headroom": Real(0, 6),
     "search.budget.trials": Whole(1), "search.budget.hours": Real(0),
     "search.budget.until": Text(r"|([01]\d|2[0-3]):[0-5]\d", "\"\" or a clock time HH:MM"),
     "search.workers": Whole(1, 1024), "search.seed": Whole(0), "search.storage": Text(),

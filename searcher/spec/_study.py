@@ -11,15 +11,16 @@ import hashlib
 import json
 import math
 import random
+import re
 from functools import lru_cache
 from pathlib import Path
 
-from searcher.errors import UserError
+from searcher.errors import Problem, UserError
 from searcher.spec._checks import check_links, check_tree, condition_values, get, leaf_paths, order_dims
 from searcher.spec._derive import DeriveError
 from searcher.spec._dims import Dimension, Sink, is_dimension
 from searcher.spec._load import load_merged
-from searcher.spec._rules import RULES, Real, Whole
+from searcher.spec._rules import NAME_PATTERN, RULES, Real, Whole
 from searcher.spec._yaml import read_yaml
 
 __all__ = ["Study", "load_study", "config_hash", "defaults"]
@@ -143,6 +144,12 @@ class Study:
                 f"derive {dim.expr.text!r} gives {value!r}; allowed: {why}", at)])
         return value
 
+    def locate(self, message: str, dotted: str) -> Problem:
+        """A problem found after loading (e.g. by a command), located at key ``dotted``."""
+        sink = Sink(self._sink.values, self._sink.keys, str(self.path))
+        sink.add(message, tuple(dotted.split(".")))
+        return sink.problems[0]
+
     def _problem(self, message: str, at: tuple):
         sink = Sink(self._sink.values, self._sink.keys, str(self.path))
         sink.add(message, at, at=at + ("derive",))
@@ -220,6 +227,18 @@ def _sorted(problems: list) -> list:
     return sorted(problems, key=lambda p: (p.file, p.line, p.column))
 
 
+def _name_from_file(base: dict, path: Path, sink: Sink) -> None:
+    """``study.name: ""`` (the default) takes the file's stem; ``extends`` never passes a
+    name on (``_load``), so a study built on the demo's file is not the demo."""
+    if base["study"]["name"]:
+        return
+    if re.fullmatch(NAME_PATTERN, path.stem) and path.stem:
+        base["study"]["name"] = path.stem
+    else:
+        sink.add(f"the file name {path.stem!r} cannot name the study (letters, digits, '-' "
+                 "and '_' only): set study.name", ("study", "name"), at=())
+
+
 def load_study(path: Path | str) -> Study:
     """Load, merge, validate and compile a study file.
 
@@ -235,6 +254,7 @@ def load_study(path: Path | str) -> Study:
     defaults_ = _defaults()
     dims = check_tree(located.data, defaults_, sink)
     base = _fixed(located.data, defaults_, dims)
+    _name_from_file(base, path, sink)
     leaves = leaf_paths(defaults_)
     check_links(dims, base, leaves, sink)
     # defaults order, so dimension lists read the same whatever order the files used

@@ -39,7 +39,7 @@ def tiny_study_doc(**overrides) -> dict:
 
     Args:
         **overrides: top-level sections merged into the document (mappings merge key
-            by key, anything else replaces; e.g. ``search={"pruner": {"kind": "curve_fit"}}``).
+            by key, anything else replaces; e.g. ``search={"pruner": {"kind": "outlook"}}``).
 
     Example::
 

@@ -8,7 +8,7 @@ import optuna
 import pytest
 
 from searcher.analysis import GOOD_LABEL, analyze
-from searcher.analysis._synthetic import add_trial, planted_study
+from searcher.testing._planted import add_trial, planted_study
 
 
 def _journal(path):

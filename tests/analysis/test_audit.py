@@ -9,7 +9,7 @@ import pytest
 
 from searcher.analysis import (choose_for_audit, classify_reruns, prune_audit, read_trials,
                                wilson_interval)
-from searcher.analysis._synthetic import add_trial
+from searcher.testing._planted import add_trial
 
 
 def _store(cuts):

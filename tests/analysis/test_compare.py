@@ -7,7 +7,7 @@ import optuna
 import pytest
 
 from searcher.analysis import compare, space_diff
-from searcher.analysis._synthetic import planted_study
+from searcher.testing._planted import planted_study
 from searcher.cli import main
 from searcher.errors import UserError
 from searcher.spec import load_study

@@ -6,7 +6,7 @@ import pytest
 from sklearn.metrics import adjusted_rand_score
 
 from searcher.analysis import GOOD_LABEL, curve_features, find_groups, group_curves
-from searcher.analysis._synthetic import planted_curves
+from searcher.testing._planted import planted_curves
 
 
 def test_adjusted_rand_reference_values():

@@ -6,7 +6,7 @@ import pytest
 from scipy.stats import false_discovery_control, fisher_exact, hypergeom, mannwhitneyu
 
 from searcher.analysis import enrichment, importances, read_trials, trait_rules
-from searcher.analysis._synthetic import planted_study
+from searcher.testing._planted import planted_study
 
 
 @pytest.fixture(scope="module")

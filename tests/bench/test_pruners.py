@@ -8,12 +8,12 @@ import yaml
 
 from searcher.bench._pruners import (_clairvoyant_ratio, _online_ratio, bench_pruners,
                                      crossing_pairs, format_bench_pruners, truth_curves)
-from searcher.search import replay_order
+from searcher.testing import replay_order
 from searcher.testing import tiny_study_doc
 
 
 def _tiny(tmp_path):
-    doc = tiny_study_doc(study={"name": "tiny-bench"}, search={"pruner": {"kind": "curve_fit"}},
+    doc = tiny_study_doc(study={"name": "tiny-bench"}, search={"pruner": {"kind": "outlook"}},
                          output={"folder": str(tmp_path / "out")})
     path = tmp_path / "tiny.yaml"
     path.write_text(yaml.safe_dump(doc, sort_keys=False))
@@ -31,8 +31,8 @@ def test_bench_pruners_tiny_ground_truth(tmp_path):
             assert row["notes"]
             continue
         table = row["pruners"]
-        assert set(table) == {"none", "median", "hyperband", "curve_fit",
-                              "curve_fit margin=0"}
+        assert set(table) == {"none", "median", "hyperband", "outlook",
+                              "outlook headroom=0"}
         # No pruning spends every epoch and keeps the best run (definition of the ratios).
         assert table["none"]["epochs_ratio"] == 1.0 and table["none"]["best_ratio"] == 1.0
         assert table["none"]["pruned"] == 0
@@ -46,7 +46,7 @@ def test_bench_pruners_tiny_ground_truth(tmp_path):
         assert isinstance(row["goal_met"], bool)
     assert out["crossing"]["pruners"]["none"]["good_size"] == 2
     text = format_bench_pruners(out)
-    assert "[crossing]" in text and "curve_fit" in text
+    assert "[crossing]" in text and "outlook" in text
     # The ground truth is cached: the same key is read back, not retrained.
     again = truth_curves(path, 6, seed=0, epochs=4, cache_dir=cache, workers=1)
     assert again["cached"] and len(again["curves"]) == 6

@@ -10,7 +10,7 @@ import pytest
 import torch
 
 import searcher
-from searcher.analysis._synthetic import planted_study
+from searcher.testing._planted import planted_study
 from searcher.cli import main
 from searcher.errors import UserError, ensure_folder
 from searcher.spec import load_study
@@ -205,8 +205,8 @@ def test_reading_a_mistyped_sqlite_storage_creates_nothing(tmp_path, capsys):
     # create an empty database (common practice: read paths are side-effect free).
     study = Path(__file__).resolve().parents[2] / "studies" / "demo-narrow.yaml"
     missing = tmp_path / "typo.db"
-    assert main(["status", str(study), "--storage", f"sqlite:///{missing}"]) == 0
-    assert "0 trials" in capsys.readouterr().out and not missing.exists()
+    assert main(["status", str(study), "--storage", f"sqlite:///{missing}"]) == 1
+    assert "has never run" in capsys.readouterr().err and not missing.exists()
     assert main(["analyze", str(study), "--storage", f"sqlite:///{missing}"]) == 2
     err = capsys.readouterr().err
     assert "Traceback" not in err and str(missing) in err and not missing.exists()

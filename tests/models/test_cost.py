@@ -1,12 +1,10 @@
 """Cost model: hand-counted multiply-adds and parameters of tiny modules."""
 from __future__ import annotations
 
-import importlib.resources
 
-import yaml
 from e3nn import o3
 
-from searcher.models import build_model, count_madds, estimate_cost, gate_samples
+from searcher.models import build_model, count_madds, estimate_cost
 from searcher.models._cost import tensor_product_madds
 from searcher.models._irreps import BiasedTensorProduct
 from searcher.testing import make_fields, model_config
@@ -49,19 +47,6 @@ def test_estimate_cost_epoch_formula():
     # forward + backward ≈ 3 forward passes (common practice)
     assert cost.madds_per_epoch == (cost.madds_per_edge * 60 + cost.madds_per_node * 12) * 10 * 3
     assert cost.to_dict()["params"] == sum(p.numel() for p in model.parameters())
-
-
-def test_gate_samples_for_demo_config():
-    text = importlib.resources.files("searcher.spec").joinpath("defaults.yaml").read_text()
-    cfg = yaml.safe_load(text)
-    cfg["model"] = model_config({"hidden.multiplicity": 2, "layers": 1, "radial.count": 4})
-    cfg["training"]["batch_size"] = 2
-    bad = yaml.safe_load(text)
-    bad["model"] = model_config({"hidden.lmax": 0, "edge_attrs.lmax": 1})  # 2e unreachable
-    good, rejected = gate_samples(None, [cfg, bad])
-    assert good["passed"] and good["equivariance_error"] < 1e-9
-    assert good["madds_per_epoch"] > 0 and good["step_ms"] > 0
-    assert not rejected["passed"] and "2e" in rejected["reason"]
 
 
 def test_timed_steps_leave_the_model_as_it_was():

@@ -11,7 +11,7 @@ from searcher.search import PRUNERS, SAMPLERS, grid_space, make_pruner, make_sam
 from searcher.spec import load_study
 
 PRUNER_CFG = {"kind": "hyperband", "min_epochs": 1, "max_epochs": 81, "eta": 3,
-              "percentile": 25.0, "warmup": 2, "threshold": 0.05, "rank": 3, "margin": 0.5}
+              "percentile": 25.0, "warmup": 2, "margin": 0.05, "rank": 3, "headroom": 0.5}
 
 
 def test_wrong_names_list_the_valid_ones(write_study):

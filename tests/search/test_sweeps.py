@@ -21,7 +21,7 @@ def _run(path, **kw):
 
 
 @pytest.mark.parametrize("pruner", ["none", "median", "percentile", "halving", "hyperband",
-                                    "curve_fit"])
+                                    "outlook"])
 def test_sweep_records_every_trial_consistently(write_study, pruner):
     path = write_study({"search": {"pruner": {"kind": pruner}}}, name=f"sweep-{pruner}")
     study, summary = _run(path)

@@ -58,7 +58,7 @@ def test_human_output(capsys):
     assert main(["check", "studies/demo.yaml", "--samples", "2"]) == 0
     out = capsys.readouterr().out
     # Derived: the choice sizes listed in studies/demo.yaml (learning_rate is the one real
-    # dimension; edge_attrs.lmax is the one derived).
+    # dimension; edge_attrs.lmax is the one derived dimension).
     sizes = {"family": 2, "hidden.lmax": 2, "hidden.multiplicity": 3, "hidden.taper": 2,
              "hidden.parity": 2, "node_attrs": 3, "node_inputs": 4, "input_products": 2,
              "edge_invariants": 2, "radial.basis": 3, "radial.count": 4, "radial.power": 3,

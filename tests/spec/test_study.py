@@ -53,7 +53,7 @@ def test_sampling_is_deterministic_and_seed_dependent():
 def test_derived_values_follow_their_inputs():
     for cfg in load_study(DEMO).sample(12, seed=3):
         assert cfg["model"]["edge_attrs"]["lmax"] == max(cfg["model"]["hidden"]["lmax"], 2)
-        assert cfg["model"]["radial"]["cutoff"] == 3.5   # fixed in studies/demo.yaml
+        assert cfg["model"]["radial"]["cutoff"] == 3.5       # fixed in studies/demo.yaml
 
 
 def test_optuna_suggestions_resolve_back_to_the_same_config():

@@ -5,7 +5,7 @@ import numpy as np
 import optuna
 import pytest
 
-from searcher.search._replay import (compare_pruners, crossing_curves, format_replay_table,
+from searcher.testing._replay import (compare_pruners, crossing_curves, format_replay_table,
                                      good_mask, measure_call_cost, replay, replay_pruners)
 
 
@@ -30,18 +30,18 @@ def test_crossing_curves_cross_and_default_good_group():
     assert np.array_equal(good_mask(curves, decades=0.5), final <= final.min() * 10 ** 0.5)
 
 
-def test_curve_fit_cuts_fewer_good_curves_than_median():
+def test_outlook_cuts_fewer_good_curves_than_median():
     curves, slow = crossing_curves(seed=0)
     results = compare_pruners(curves, replay_pruners(30, min_epochs=5, warmup=4),
                               good=slow, seed=0)
     by = {r.pruner: r for r in results}
-    assert set(by) == {"none", "median", "hyperband", "curve_fit"}
-    assert by["curve_fit"].wrongly_pruned_rate <= by["median"].wrongly_pruned_rate
-    assert by["curve_fit"].epoch_ratio < 1.0
-    assert by["curve_fit"].summary() == {
-        "epochs_ratio": by["curve_fit"].epoch_ratio, "best_ratio": by["curve_fit"].best_ratio,
-        "wrongly_pruned_rate": by["curve_fit"].wrongly_pruned_rate,
-        "pruned": by["curve_fit"].pruned, "good_size": by["curve_fit"].good}
+    assert set(by) == {"none", "median", "hyperband", "outlook"}
+    assert by["outlook"].wrongly_pruned_rate <= by["median"].wrongly_pruned_rate
+    assert by["outlook"].epoch_ratio < 1.0
+    assert by["outlook"].summary() == {
+        "epochs_ratio": by["outlook"].epoch_ratio, "best_ratio": by["outlook"].best_ratio,
+        "wrongly_pruned_rate": by["outlook"].wrongly_pruned_rate,
+        "pruned": by["outlook"].pruned, "good_size": by["outlook"].good}
 
 
 def test_replay_table_rows_from_known_figures():
@@ -76,7 +76,7 @@ def test_hyperband_prunes_only_at_its_rungs():
 
 def test_replay_is_deterministic_and_checks_shapes():
     curves, slow = crossing_curves(3, 5, epochs=20, seed=4)
-    make = replay_pruners(20, min_epochs=5, warmup=4)["curve_fit"]
+    make = replay_pruners(20, min_epochs=5, warmup=4)["outlook"]
     a = replay(curves, make(), good=slow, seed=1)
     b = replay(curves, make(), good=slow, seed=1)
     assert a.to_dict() == b.to_dict()

@@ -7,8 +7,8 @@ import time
 
 import optuna
 
-from searcher.analysis._analyze import analyze
-from searcher.analysis._synthetic import planted_study
+from searcher.analysis import analyze
+from searcher.testing._planted import planted_study
 
 __all__ = ["bench_analysis_10k"]
 

@@ -1,4 +1,4 @@
-"""CurveFitPruner and prob_beats: extrapolation of exact published shapes, pruning rules."""
+"""OutlookPruner and prob_beats: extrapolation of exact published shapes, pruning rules."""
 from __future__ import annotations
 
 import math
@@ -7,9 +7,9 @@ import numpy as np
 import optuna
 import pytest
 
-from searcher.search._curve_fit import (_TRUST_FRACTION, CurveFitPruner, _fit_shape,
+from searcher.search.pruners._outlook import (_TRUST_FRACTION, OutlookPruner, _fit_shape,
                                         crossing_prior, prob_beats)
-from searcher.search._curve_shapes import SHAPES
+from searcher.search.pruners._shapes import SHAPES
 
 # Curve families of Domhan, Springenberg & Hutter, IJCAI 2015 (Table 1), written for a falling
 # log10 loss: pow3 y = c + a x^-alpha, exp3 y = c + a exp(-b x).
@@ -81,7 +81,7 @@ def _first_prune(study, values):
 
 
 def test_pruner_prunes_a_stalled_curve_at_min_epochs_but_spares_a_flat_start():
-    study = _study(CurveFitPruner(min_epochs=8, max_epochs=30))
+    study = _study(OutlookPruner(min_epochs=8, max_epochs=30))
     # Fell two decades, then stalled far above the target: the fit is trusted at min_epochs.
     stalled = np.r_[1.0, 0.1, np.full(28, 0.01)] * (1 + 0.01 * np.sin(np.arange(30)))
     assert _first_prune(study, stalled) == 8
@@ -108,7 +108,7 @@ def test_crossing_prior_counts_look_alike_finished_curves():
 def test_prior_spares_a_plateau_curve_that_finished_ones_show_will_drop():
     x = np.arange(1, 31)
     plateau = np.where(x <= 20, 0.03, 0.03 * 10.0 ** (-0.3 * (x - 20)))
-    study = _study(CurveFitPruner(min_epochs=5, max_epochs=30, rank=3),
+    study = _study(OutlookPruner(min_epochs=5, max_epochs=30, rank=3),
                    finished=(1e-4, 2e-4, 3e-4))
     for _ in range(2):                 # two finished look-alikes that dropped past 3e-4
         t = study.ask()
@@ -122,19 +122,19 @@ def test_prior_spares_a_plateau_curve_that_finished_ones_show_will_drop():
 
 
 def test_pruner_never_prunes_a_curve_beating_kth_best():
-    study = _study(CurveFitPruner(min_epochs=5, max_epochs=30, rank=3))
+    study = _study(OutlookPruner(min_epochs=5, max_epochs=30, rank=3))
     # 3rd best finished value is 3e-4; this curve reaches 2.5e-4 at epoch 3 and stalls.
     values = np.r_[1e-2, 1e-3, 2.5e-4, np.full(26, 5e-3)]
     assert _first_prune(study, values) is None
 
 
 def test_pruner_needs_rank_finished_trials():
-    study = _study(CurveFitPruner(min_epochs=5, max_epochs=30, rank=3), finished=(1e-4, 2e-4))
+    study = _study(OutlookPruner(min_epochs=5, max_epochs=30, rank=3), finished=(1e-4, 2e-4))
     assert _first_prune(study, np.full(29, 0.1)) is None
 
 
 def test_pruner_never_prunes_at_max_epochs():
-    pruner = CurveFitPruner(min_epochs=5, max_epochs=30)
+    pruner = OutlookPruner(min_epochs=5, max_epochs=30)
     study = _study(pruner)
     trial = study.ask()
     for epoch in range(1, 31):
@@ -144,27 +144,27 @@ def test_pruner_never_prunes_at_max_epochs():
 
 
 def test_pruner_handles_nan():
-    study = _study(CurveFitPruner(min_epochs=5, max_epochs=30))
+    study = _study(OutlookPruner(min_epochs=5, max_epochs=30))
     values = np.r_[1.0, np.full(29, 0.01)]
     values[[1, 4, 6]] = np.nan
     values[5] = np.inf
     # Epochs 2, 5, 6, 7 are not finite, so the 5th finite point (the fewest fitted) arrives
     # at epoch 9, past min_epochs; the stalled curve is pruned then.
     assert _first_prune(study, values) == 9
-    study2 = _study(CurveFitPruner(min_epochs=5, max_epochs=30))
+    study2 = _study(OutlookPruner(min_epochs=5, max_epochs=30))
     assert _first_prune(study2, np.full(29, np.nan)) is None
 
 
 def test_pruner_validation_and_direction():
     with pytest.raises(ValueError, match="min_epochs"):
-        CurveFitPruner(min_epochs=10, max_epochs=10)
-    with pytest.raises(ValueError, match="threshold"):
-        CurveFitPruner(threshold=1.5)
-    with pytest.raises(ValueError, match="rank"):
-        CurveFitPruner(rank=0)
+        OutlookPruner(min_epochs=10, max_epochs=10)
     with pytest.raises(ValueError, match="margin"):
-        CurveFitPruner(margin=-0.1)
-    study = optuna.create_study(pruner=CurveFitPruner(), direction="maximize")
+        OutlookPruner(margin=1.5)
+    with pytest.raises(ValueError, match="rank"):
+        OutlookPruner(rank=0)
+    with pytest.raises(ValueError, match="headroom"):
+        OutlookPruner(headroom=-0.1)
+    study = optuna.create_study(pruner=OutlookPruner(), direction="maximize")
     trial = study.ask()
     trial.report(1.0, 1)
     with pytest.raises(ValueError, match="minimising"):
@@ -174,18 +174,18 @@ def test_pruner_validation_and_direction():
 def test_margin_spares_a_curve_ending_near_the_kth_best():
     # Stalled at 5e-4: above the 3rd best finished value (3e-4), so the plain rule prunes it
     # at min_epochs, but within half a decade of it (3e-4 x 10^0.5 = 9.5e-4, derived), so
-    # margin 0.5 keeps it; a stall at 1e-2 is pruned under both.
+    # headroom 0.5 keeps it; a stall at 1e-2 is pruned under both.
     near = np.r_[1.0, 1e-2, np.full(28, 5e-4)] * (1 + 0.01 * np.sin(np.arange(30)))
     far = np.r_[1.0, 0.1, np.full(28, 1e-2)] * (1 + 0.01 * np.sin(np.arange(30)))
-    plain = CurveFitPruner(min_epochs=8, max_epochs=30, margin=0.0)
+    plain = OutlookPruner(min_epochs=8, max_epochs=30, headroom=0.0)
     assert _first_prune(_study(plain), near) == 8
-    spare = CurveFitPruner(min_epochs=8, max_epochs=30, margin=0.5)
+    spare = OutlookPruner(min_epochs=8, max_epochs=30, headroom=0.5)
     assert _first_prune(_study(spare), near) is None
     assert _first_prune(_study(spare), far) == 8
 
 
 def _flat_study(look_alikes: int):
-    study = _study(CurveFitPruner(min_epochs=2, max_epochs=30))
+    study = _study(OutlookPruner(min_epochs=2, max_epochs=30))
     for _ in range(look_alikes):  # finished curves flat at 0.1: all missed the target
         t = study.ask()
         for epoch in range(1, 31):

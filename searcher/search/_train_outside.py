@@ -1,4 +1,4 @@
-"""Re-training a resolved config outside the search (prune audit, dossier finalists)."""
+"""Training one resolved config outside the search (prune audit, dossier finalists, bench)."""
 from __future__ import annotations
 
 import copy

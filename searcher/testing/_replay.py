@@ -18,7 +18,7 @@ import numpy as np
 import optuna
 from optuna.trial import TrialState
 
-from searcher.search._curve_fit import CurveFitPruner, prob_beats
+from searcher.search.pruners import OutlookPruner, prob_beats
 from searcher.search._registry import make_pruner
 
 __all__ = ["ReplayResult", "crossing_curves", "good_mask", "replay", "replay_order",
@@ -202,24 +202,24 @@ def replay(curves: Sequence[np.ndarray], pruner: optuna.pruners.BasePruner, *,
 
 
 def replay_pruners(max_epochs: int, *, min_epochs: int = 1, eta: int = 3, warmup: int = 2,
-                   percentile: float = 25.0, threshold: float = 0.05, rank: int = 3,
-                   kinds: Sequence[str] = ("none", "median", "hyperband", "curve_fit"),
-                   margin: float = 0.5, margins: Sequence[float] = ()
+                   percentile: float = 25.0, margin: float = 0.05, rank: int = 3,
+                   kinds: Sequence[str] = ("none", "median", "hyperband", "outlook"),
+                   headroom: float = 0.5, headrooms: Sequence[float] = ()
                    ) -> dict[str, Callable[[], optuna.pruners.BasePruner]]:
     """Factories for the pruners a replay compares, keyed by YAML pruner kind.
 
     They are built by :func:`make_pruner` from a ``search.pruner`` mapping (the options of
     defaults.yaml), so a replay judges exactly the pruner a study would run.  Note that
     ``warmup`` epochs are never pruned by median/percentile, while ``min_epochs`` is the first
-    epoch curve_fit may prune: ``warmup = min_epochs - 1`` lines them up.  Each of
-    ``margins`` adds a curve_fit row labelled ``curve_fit margin=<m>`` with that margin.
+    epoch outlook may prune: ``warmup = min_epochs - 1`` lines them up.  Each of
+    ``headrooms`` adds an outlook row labelled ``outlook headroom=<h>`` with that headroom.
     """
     cfg = {"min_epochs": min_epochs, "max_epochs": max_epochs, "eta": eta, "warmup": warmup,
-           "percentile": percentile, "threshold": threshold, "rank": rank, "margin": margin}
+           "percentile": percentile, "margin": margin, "rank": rank, "headroom": headroom}
     out = {kind: partial(make_pruner, {**cfg, "kind": kind}) for kind in kinds}
-    for m in margins:
-        out[f"curve_fit margin={m:g}"] = partial(make_pruner, {**cfg, "kind": "curve_fit",
-                                                        "margin": float(m)})
+    for h in headrooms:
+        out[f"outlook headroom={h:g}"] = partial(make_pruner, {**cfg, "kind": "outlook",
+                                                             "headroom": float(h)})
     return out
 
 
@@ -248,7 +248,7 @@ def format_replay_table(rows: Mapping[str, Mapping]) -> str:
 
 
 def measure_call_cost(points: int = 30, calls: int = 40, seed: int = 0) -> dict:
-    """Wall-clock cost of one :meth:`CurveFitPruner.prune` call on a ``points``-epoch curve.
+    """Wall-clock cost of one :meth:`OutlookPruner.prune` call on a ``points``-epoch curve.
 
     A real in-memory study holds three finished slow starters; every call then judges a fast
     staller's first ``points`` epochs (whose best does not beat the target, so the full
@@ -259,7 +259,7 @@ def measure_call_cost(points: int = 30, calls: int = 40, seed: int = 0) -> dict:
         probability for the judged curve, below 1 when the extrapolation ran).
     """
     curves, _ = crossing_curves(n_slow=3, n_fast=1, epochs=points + 1, seed=seed)
-    pruner = CurveFitPruner(min_epochs=1, max_epochs=points + 1, rank=3, margin=0.0)
+    pruner = OutlookPruner(min_epochs=1, max_epochs=points + 1, rank=3, headroom=0.0)
     study = optuna.create_study(storage=optuna.storages.InMemoryStorage(), pruner=pruner,
                                 direction="minimize", study_name=f"cost-{seed}")
     for curve in curves[:3]:

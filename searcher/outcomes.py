@@ -1,4 +1,8 @@
-"""Trial outcomes and how each is stored in Optuna.
+"""The contract of a stored trial, read by search, analysis and report: outcome names, their
+mapping from Optuna states, and the MLflow tag names.  No torch here (analysis reads studies
+without the training code).
+
+Trial outcomes and how each is stored in Optuna:
 
 =============  ============  ===============================================================
 outcome        Optuna state  why
@@ -18,8 +22,14 @@ interrupted    FAIL          a signal, deadline or lost worker ended it; re-queu
 failed         FAIL          an error in training; not retried
 =============  ============  ===============================================================
 
-A FAIL trial without an ``outcome`` attribute is one whose worker died: it counts as
-interrupted.  Budgets count every outcome except ``interrupted``.
+A trial without an ``outcome`` attribute takes one from its state (:data:`STATE_OUTCOME`):
+a FAIL trial without one is one whose worker died, so it counts as interrupted (and is
+re-queued on resume), everywhere.  Budgets count every outcome except ``interrupted``.
+
+MLflow tags (:data:`TAGS`): a study's parent run carries ``role = study``, ``study`` (its name),
+``study_hash`` and ``summary``; a trial's child run ``role = trial`` and ``trial`` (its
+number), and when it ends ``outcome``, ``reason`` and ``pruned_at``.  Every tag name is
+prefixed ``searcher.``.
 """
 from __future__ import annotations
 
@@ -28,10 +38,17 @@ import math
 from optuna.trial import FrozenTrial, TrialState
 
 __all__ = ["OUTCOMES", "outcome_of", "tally", "best_record", "finished", "ranked_values",
-           "VALUED"]
+           "VALUED", "STATE_OUTCOME", "TAGS", "STUDY_ROLE", "TRIAL_ROLE"]
 
 OUTCOMES = ("completed", "pruned", "diverged", "rejected", "timeout", "interrupted", "failed")
 VALUED = ("completed", "timeout")  # outcomes whose value is a real best validation loss
+# The outcome of a finished trial stored without an ``outcome`` attribute.
+STATE_OUTCOME = {TrialState.COMPLETE: "completed", TrialState.PRUNED: "pruned",
+                 TrialState.FAIL: "interrupted"}
+
+TAGS = {name: f"searcher.{name}" for name in ("role", "study", "study_hash", "summary", "trial",
+                                              "outcome", "reason", "pruned_at")}
+STUDY_ROLE, TRIAL_ROLE = "study", "trial"
 
 
 def outcome_of(trial: FrozenTrial) -> str:
@@ -39,9 +56,9 @@ def outcome_of(trial: FrozenTrial) -> str:
     outcome = trial.user_attrs.get("outcome")
     if outcome and trial.state.is_finished():
         return str(outcome)
-    return {TrialState.RUNNING: "running", TrialState.WAITING: "waiting",
-            TrialState.FAIL: "interrupted", TrialState.COMPLETE: "completed",
-            TrialState.PRUNED: "pruned"}[trial.state]
+    if trial.state in STATE_OUTCOME:
+        return STATE_OUTCOME[trial.state]
+    return {TrialState.RUNNING: "running", TrialState.WAITING: "waiting"}[trial.state]
 
 
 def finished(trials) -> int:

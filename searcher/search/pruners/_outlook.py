@@ -1,4 +1,5 @@
-"""Learning-curve extrapolation pruner (Domhan, Springenberg & Hutter, IJCAI 2015).
+"""The ``outlook`` pruner: learning-curve extrapolation (after Domhan, Springenberg & Hutter,
+IJCAI 2015).
 
 Rung-based pruners (median, successive halving, Hyperband) compare a trial with its rivals at
 the *same* epoch, so they assume learning curves rarely cross.  Equivariant networks often sit
@@ -36,10 +37,10 @@ around it (all deterministic):
    0.25 decade RMS of the running one over the epochs seen (:func:`crossing_prior`) are its
    look-alikes; ``hits`` of those ``m`` ended at or below the target.  The fit counts as one
    pseudo-observation beside them (a beta-binomial blend): prune when
-   ``(hits + P_fit) / (m + 1) < threshold``.  Many look-alikes that all failed make pruning
+   ``(hits + P_fit) / (m + 1) < margin``.  Many look-alikes that all failed make pruning
    decisive; one look-alike that later dropped past the target is enough to spare a curve.
    Before a fit is possible (fewer than 5 points) the look-alikes speak alone, through
-   Laplace's rule of succession: prune when ``(hits + 1) / (m + 2) < threshold``.
+   Laplace's rule of succession: prune when ``(hits + 1) / (m + 2) < margin``.
 3. *Plateau guard*: with no look-alike, a curve whose best is still within noise of its first
    value (it has not started to learn) is not judged by the fit before half the budget.
 
@@ -47,8 +48,8 @@ Related work: LC-PFN (Adriaensen et al., NeurIPS 2023) replaces the parametric m
 prior-fitted network trained on curves sampled from the same families; we keep the
 parametric fit because it needs no trained network and no GPU.
 
-``margin`` (decades, default 0.5) moves the target up from the k-th best value to
-``kth * 10**margin``: a curve that may still finish within that distance of the k-th best is
+``headroom`` (decades, default 0.5) moves the target up from the k-th best value to
+``kth * 10**headroom``: a curve that may still finish within that distance of the k-th best is
 spared.  With 0 the pruner serves "find the top k"; with 0.5 (the separation the analysis
 layer demands between its groups) it serves "keep every curve that may land in the best
 group", which the analysis needs to say what the good configurations share, at the price of
@@ -65,13 +66,13 @@ import math
 
 import numpy as np
 import optuna
-from optuna.trial import TrialState
 from scipy.optimize import least_squares
 from scipy.special import stdtr
 
-from searcher.search._curve_shapes import SHAPES, Shape
+from searcher.search.pruners._base import BaseCurvePruner, curve_of
+from searcher.search.pruners._shapes import SHAPES, Shape
 
-__all__ = ["CurveFitPruner", "prob_beats", "crossing_prior"]
+__all__ = ["OutlookPruner", "prob_beats", "crossing_prior"]
 
 # Residual standard deviation floor in decades: a validation loss measured on a finite set
 # always jitters by a few percent, and exact synthetic curves must not give zero variance.
@@ -156,15 +157,6 @@ def _noise_scale(y: np.ndarray) -> float:
     if y.size < 3:
         return _NOISE_FLOOR
     return max(_NOISE_FLOOR, 1.4826 * float(np.median(np.abs(np.diff(y, 2)))) / math.sqrt(6.0))
-
-
-def _curve_of(trial: optuna.trial.FrozenTrial, step: int) -> np.ndarray:
-    """Intermediate values 1..step as an array (NaN where an epoch was not reported)."""
-    curve = np.full(step, np.nan)
-    for s, v in trial.intermediate_values.items():
-        if 1 <= s <= step:
-            curve[s - 1] = v
-    return curve
 
 
 def _logs(curve) -> np.ndarray:
@@ -285,7 +277,7 @@ def prob_beats(curve, max_epochs: int, target: float) -> float:
     return float(np.clip(w @ stdtr(dofs, t), 0.0, 1.0))
 
 
-class CurveFitPruner(optuna.pruners.BasePruner):
+class OutlookPruner(BaseCurvePruner):
     """Prune a trial when its extrapolated curve is unlikely to beat the k-th best finished one.
 
     The trial's intermediate values (validation loss, step = epoch from 1) are passed to
@@ -299,57 +291,42 @@ class CurveFitPruner(optuna.pruners.BasePruner):
     Args:
         min_epochs: first epoch at which a trial may be pruned.
         max_epochs: the full training budget in epochs (the extrapolation point).
-        threshold: prune when P(final < target) is below this (Domhan et al. use 0.05).
+        margin: prune when P(final < target) is below this chance (Domhan et al. use 0.05).
         rank: k, the rank of the finished trial the running one must beat.
-        margin: decades above the k-th best value that still count as beating it.
+        headroom: decades above the k-th best value that still count as beating it.
 
     Example:
-        >>> pruner = CurveFitPruner(min_epochs=5, max_epochs=30, threshold=0.05, rank=3)
+        >>> pruner = OutlookPruner(min_epochs=5, max_epochs=30, margin=0.05, rank=3)
     """
 
-    def __init__(self, min_epochs: int = 1, max_epochs: int = 20, threshold: float = 0.05,
-                 rank: int = 3, margin: float = 0.5) -> None:
+    def __init__(self, min_epochs: int = 1, max_epochs: int = 20, margin: float = 0.05,
+                 rank: int = 3, headroom: float = 0.5) -> None:
         if not 1 <= min_epochs < max_epochs:
             raise ValueError("1 <= min_epochs < max_epochs must hold, but got "
                              f"min_epochs={min_epochs}, max_epochs={max_epochs}.")
-        if not 0.0 < threshold < 1.0:
-            raise ValueError(f"0 < threshold < 1 must hold, but got threshold={threshold}.")
+        if not 0.0 < margin < 1.0:
+            raise ValueError(f"0 < margin < 1 must hold, but got margin={margin}.")
         if rank < 1:
             raise ValueError(f"rank >= 1 must hold, but got rank={rank}.")
-        if not 0.0 <= margin <= _MAX_DROP:
-            raise ValueError(f"0 <= margin <= {_MAX_DROP:g} must hold, but got margin={margin}.")
+        if not 0.0 <= headroom <= _MAX_DROP:
+            raise ValueError(f"0 <= headroom <= {_MAX_DROP:g} must hold, "
+                             f"but got headroom={headroom}.")
         self._min_epochs = int(min_epochs)
         self._max_epochs = int(max_epochs)
-        self._threshold = float(threshold)
-        self._rank = int(rank)
         self._margin = float(margin)
-
-    def _finished(self, study: optuna.Study) -> tuple[list[np.ndarray], list[float]]:
-        """Curves and final values of COMPLETE trials (no finite value: best intermediate)."""
-        curves, finals = [], []
-        for t in study.get_trials(deepcopy=False, states=(TrialState.COMPLETE,)):
-            curve = _curve_of(t, t.last_step or 0)
-            v = t.value
-            if v is None or not math.isfinite(v):
-                finite = curve[np.isfinite(curve)]
-                v = float(finite.min()) if finite.size else None
-            if v is not None:
-                curves.append(curve)
-                finals.append(float(v))
-        return curves, finals
+        self._rank = int(rank)
+        self._headroom = float(headroom)
 
     def prune(self, study: optuna.Study, trial: optuna.trial.FrozenTrial) -> bool:
-        if study.direction != optuna.study.StudyDirection.MINIMIZE:
-            raise ValueError("CurveFitPruner needs a minimising study, but got direction="
-                             f"{study.direction.name}.")
+        self.check_direction(study)
         step = trial.last_step
         if step is None or step < self._min_epochs or step >= self._max_epochs:
             return False
-        curves, finals = self._finished(study)
+        curves, finals = self.finished(study)
         if len(finals) < self._rank:
             return False
-        target = sorted(finals)[self._rank - 1] * 10.0 ** self._margin
-        curve = _curve_of(trial, step)
+        target = sorted(finals)[self._rank - 1] * 10.0 ** self._headroom
+        curve = curve_of(trial, step)
         finite = curve[np.isfinite(curve) & (curve > 0)]
         if finite.size == 0 or finite.min() <= target:
             return False                       # never prune a curve that beats the target
@@ -359,16 +336,16 @@ class CurveFitPruner(optuna.pruners.BasePruner):
         hits, seen = crossing_prior(curve, curves, finals, target)
         if math.isnan(p_fit):
             # Too few points to fit: only the look-alikes speak, through Laplace's rule of
-            # succession, (hits + 1) / (seen + 2); with the default threshold that takes 19
+            # succession, (hits + 1) / (seen + 2); with the default margin that takes 19
             # finished look-alikes that all missed.
-            return seen > 0 and (hits + 1) / (seen + 2) < self._threshold
+            return seen > 0 and (hits + 1) / (seen + 2) < self._margin
         if seen:
             # Beta-binomial blend: the fit counts as one pseudo-observation beside the
             # finished curves that looked like this one at this epoch.
-            return (hits + p_fit) / (seen + 1) < self._threshold
+            return (hits + p_fit) / (seen + 1) < self._margin
         # Nothing finished looked like this curve.  A fit cannot see the drop that ends a
         # plateau, so a curve still flat since its first epoch keeps its chance until
         # _TRUST_FRACTION of the budget is spent.
         if _still_flat(finite) and step < _TRUST_FRACTION * self._max_epochs:
             return False
-        return p_fit < self._threshold
+        return p_fit < self._margin

@@ -1,8 +1,8 @@
-"""The four curve shapes the curve-fit pruner mixes (Domhan, Springenberg & Hutter, IJCAI 2015).
+"""The four curve shapes the outlook pruner mixes (Domhan, Springenberg & Hutter, IJCAI 2015).
 
 Each shape is ``y(x) = c + a * phi(x; theta)`` on ``y = log10(loss)``; a shape gives ``phi``
 and its derivative in ``theta``, a grid of starting values and bounds.  ``x`` is the epoch,
-``u = x / X`` the fraction of the budget ``X``.  See :mod:`searcher.search._curve_fit` for
+``u = x / X`` the fraction of the budget ``X``.  See :mod:`searcher.search.pruners._outlook` for
 how each maps onto Domhan et al.'s families.
 """
 from __future__ import annotations

@@ -1,5 +1,5 @@
 """The analysis benchmark runs (timing goals live in scripts/bench, not in tests)."""
-from searcher.analysis import bench_analysis_10k
+from searcher.bench import bench_analysis_10k
 
 
 def test_bench_runs_on_a_small_study():
