@@ -19,7 +19,8 @@ fields are declared ``at: cells`` (finite-volume output), the nodes are the cell
 the node fields come from ``cell_data`` (blocks concatenated in file order), and with
 ``task.mesh_edges`` two cells are joined when they share a face (see ``_cells``).
 
-A folder is one dataset: its data files in name order, one graph each.  Tensors of a
+A folder is one dataset: its data files in name order, one graph each; a file directly in
+it is a case of its own, and each sub-folder is one case holding its files (``_cases``).  Tensors of a
 symmetric kind must be symmetric to a relative tolerance of 1e-6; the traceless kind keeps
 only the traceless part.
 """
@@ -35,17 +36,25 @@ from searcher.data._graphs import RESERVED_NAMES
 from searcher.data._kinds import FIELD_KINDS, Field, cartesian_matrix, to_cartesian, to_irreps
 from searcher.errors import UserError, ensure_folder
 
-__all__ = ["SUFFIXES", "data_files", "declared_fields", "read_samples", "write_npz"]
+__all__ = ["SUFFIXES", "data_cases", "data_files", "declared_fields", "read_samples", "write_npz"]
 
 SUFFIXES = (".npz", ".vtu", ".vtp", ".vtk")
 _SYM_TOL = 1e-6
 
 
 def data_files(source) -> list[Path]:
-    """The data files of a file or folder source, in name order."""
+    """The data files of a file or folder source (see :func:`data_cases` for the order)."""
+    return [p for p, _ in data_cases(source)]
+
+
+def data_cases(source) -> list[tuple[Path, str]]:
+    """``(file, case)`` of every data file of a source: a file is its own case (its stem);
+    a folder's files directly in it likewise, and each sub-folder is one case."""
     path = Path(source)
     if path.is_dir():
-        files = sorted(p for p in path.iterdir() if p.suffix.lower() in SUFFIXES)
+        from searcher.data._cases import case_files
+
+        files = case_files(path, SUFFIXES)
         if not files:
             raise UserError.single(f"folder holds no data files (rule: at least one of "
                                    f"{', '.join(SUFFIXES)})", file=str(path), path="task.source")
@@ -55,7 +64,7 @@ def data_files(source) -> list[Path]:
     if path.suffix.lower() not in SUFFIXES:
         raise UserError.single(f"unsupported data file type {path.suffix!r} (rule: one of "
                                f"{', '.join(SUFFIXES)})", file=str(path), path="task.source")
-    return [path]
+    return [(path, path.stem)]
 
 
 def _err(path, message, key=""):
@@ -208,7 +217,7 @@ def read_samples(task_cfg: dict, fields: dict[str, Field]) -> list[Sample]:
     """One :class:`Sample` per data file, fields converted to the irreps basis."""
     samples = []
     place = field_place(task_cfg)
-    for index, path in enumerate(data_files(task_cfg["source"])):
+    for index, (path, case) in enumerate(data_cases(task_cfg["source"])):
         if place == "cells" and path.suffix.lower() == ".npz":
             raise _err(path, "fields at cells need a VTK file with cell_data (an NPZ file "
                        "holds node values only)", "task.fields")
@@ -225,7 +234,7 @@ def read_samples(task_cfg: dict, fields: dict[str, Field]) -> list[Sample]:
         pos = to_irreps("vector", pos)   # embeds 2D points in the plane z = 0
         values = {f.name: _field_values(path, f, raw, len(pos)) for f in fields.values()}
         edges = _edges(path, raw, len(pos)) if task_cfg.get("mesh_edges") else None
-        samples.append(Sample(pos, values, path.stem, index, source=str(path), edge_index=edges))
+        samples.append(Sample(pos, values, case, index, source=str(path), edge_index=edges))
     return samples
 
 
