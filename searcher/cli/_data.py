@@ -112,7 +112,11 @@ def _inspect(args) -> int:
           f"[{g['edges_min']}, {g['edges_max']}]")
     print(f"degree mean {g['degree_mean']:.2f}, max {g['degree_max']}; isolated nodes "
           f"{g['isolated_nodes']}; edges dropped by cap {s['edges_dropped']}")
-    print("split   " + "  ".join(f"{k} {v}" for k, v in s["split"].items()))
+    print("split   " + "  ".join(f"{k} {v}" for k, v in s["split"].items())
+          + f"   (by {s.get('split_by', 'sample')})")
+    cases = s.get("cases", {})
+    if cases and s.get("split_by") == "case" or any(v == "unseen_family" for v in cases.values()):
+        print("cases   " + "  ".join(f"{c}: {p}" for c, p in cases.items()))
     print("stress  " + ("  ".join(f"{k} {v}" for k, v in s["stress"].items()) or "none"))
     for line in s["stress_notes"] + report["warnings"]:
         print(f"note    {line}")

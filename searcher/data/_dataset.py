@@ -23,7 +23,8 @@ from searcher.data._files import data_files, declared_fields, read_samples
 from searcher.data._graphs import build_edges, graph_stats, to_data
 from searcher.data._kinds import Field
 from searcher.data._normaliser import Normaliser
-from searcher.data._splits import split_samples, stress_sets
+from searcher.data._cases import check_hold_out, split_by_case
+from searcher.data._splits import stress_sets
 from searcher.errors import UserError
 
 __all__ = ["Dataset", "GENERATOR_VERSION", "build_dataset", "data_hash", "describe_fields"]
@@ -112,6 +113,8 @@ def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
     else:
         samples = read_samples(task_cfg, fields)
     hold = set(task_cfg["split"]["hold_out"])
+    if task_cfg["source"] != "demo":
+        check_hold_out(hold, {s.family for s in samples}, task_cfg["source"])
     kept = [s for s in samples if s.family not in hold]
     held = [s for s in samples if s.family in hold]
     if len(kept) < 3:
@@ -120,8 +123,8 @@ def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
                                "3, one each for train, val and test; a folder of files gives one "
                                "sample per file)", file="" if source == "demo" else str(source),
                                path="task.split.hold_out" if held else "task.source")
-    split = split_samples(list(range(len(kept))), task_cfg["split"]["fractions"],
-                          task_cfg["split"]["seed"])
+    split, split_by = split_by_case([s.family for s in kept], task_cfg["split"],
+                                    task_cfg["source"])
     norm = Normaliser.fit({k: f.irreps for k, f in fields.items()},
                           {k: [kept[i].fields[k] for i in split["train"]] for k in fields})
     stress_samples, notes = stress_sets(task_cfg, fields, [kept[i] for i in split["test"]], held)
@@ -134,8 +137,21 @@ def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
              "stress": {k: len(v) for k, v in stress.items()}, "stress_notes": notes,
              "families": sorted({s.family for s in kept}),
              "held_out": sorted({s.family for s in held}),
+             "split_by": split_by, "cases": _case_parts(kept, split, held),
              **counters}
     return Dataset(fields, graphs, split, stress, norm, digest, stats)
+
+
+def _case_parts(kept: list[Sample], split: dict, held: list[Sample]) -> dict[str, str]:
+    """case → the part its samples are in (``a+b`` when split by sample puts it in several;
+    ``unseen_family`` when held out)."""
+    parts: dict[str, set] = {}
+    for part, idx in split.items():
+        for i in idx:
+            parts.setdefault(kept[i].family, set()).add(part)
+    out = {c: "+".join(p for p in ("train", "val", "test") if p in ps) for c, ps in parts.items()}
+    out.update({s.family: "unseen_family" for s in held})
+    return dict(sorted(out.items()))
 
 
 def build_dataset(task_cfg: dict, cache_dir=None) -> Dataset:

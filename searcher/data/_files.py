@@ -14,9 +14,13 @@ NPZ schema (one graph per file; ``searcher data export`` writes it, the reader a
 
 VTK (``.vtu``, ``.vtp``, ``.vtk``, read with meshio): ``point_data`` arrays are node fields,
 ``field_data`` arrays graph fields; ``task.fields`` must declare their kinds; with
-``task.mesh_edges`` the edges join every pair of vertices that share a cell.
+``task.mesh_edges`` the edges join every pair of vertices that share a cell.  When the
+fields are declared ``at: cells`` (finite-volume output), the nodes are the cell centroids,
+the node fields come from ``cell_data`` (blocks concatenated in file order), and with
+``task.mesh_edges`` two cells are joined when they share a face (see ``_cells``).
 
-A folder is one dataset: its data files in name order, one graph each.  Tensors of a
+A folder is one dataset: its data files in name order, one graph each; a file directly in
+it is a case of its own, and each sub-folder is one case holding its files (``_cases``).  Tensors of a
 symmetric kind must be symmetric to a relative tolerance of 1e-6; the traceless kind keeps
 only the traceless part.
 """
@@ -32,17 +36,25 @@ from searcher.data._graphs import RESERVED_NAMES
 from searcher.data._kinds import FIELD_KINDS, Field, cartesian_matrix, to_cartesian, to_irreps
 from searcher.errors import UserError, ensure_folder
 
-__all__ = ["SUFFIXES", "data_files", "declared_fields", "read_samples", "write_npz"]
+__all__ = ["SUFFIXES", "data_cases", "data_files", "declared_fields", "read_samples", "write_npz"]
 
 SUFFIXES = (".npz", ".vtu", ".vtp", ".vtk")
 _SYM_TOL = 1e-6
 
 
 def data_files(source) -> list[Path]:
-    """The data files of a file or folder source, in name order."""
+    """The data files of a file or folder source (see :func:`data_cases` for the order)."""
+    return [p for p, _ in data_cases(source)]
+
+
+def data_cases(source) -> list[tuple[Path, str]]:
+    """``(file, case)`` of every data file of a source: a file is its own case (its stem);
+    a folder's files directly in it likewise, and each sub-folder is one case."""
     path = Path(source)
     if path.is_dir():
-        files = sorted(p for p in path.iterdir() if p.suffix.lower() in SUFFIXES)
+        from searcher.data._cases import case_files
+
+        files = case_files(path, SUFFIXES)
         if not files:
             raise UserError.single(f"folder holds no data files (rule: at least one of "
                                    f"{', '.join(SUFFIXES)})", file=str(path), path="task.source")
@@ -52,14 +64,33 @@ def data_files(source) -> list[Path]:
     if path.suffix.lower() not in SUFFIXES:
         raise UserError.single(f"unsupported data file type {path.suffix!r} (rule: one of "
                                f"{', '.join(SUFFIXES)})", file=str(path), path="task.source")
-    return [path]
+    return [(path, path.stem)]
 
 
 def _err(path, message, key=""):
     return UserError.single(message, file=str(path), path=key)
 
 
-def _load(path: Path) -> dict:
+def field_place(task_cfg: dict) -> str:
+    """``points`` or ``cells``: where the declared node fields live (``task.fields[].at``).
+
+    Raises:
+        UserError: two fields name different places (located at the second one's key).
+    """
+    decl = task_cfg.get("fields") or {}
+    places = [(n, (e.get("at") if isinstance(e, dict) else None) or "points")
+              for n, e in decl.items()]
+    for name, at in places:
+        if at not in ("points", "cells"):
+            raise _err("", f"must be points or cells; got {at!r}", f"task.fields.{name}.at")
+        if at != places[0][1]:
+            raise _err("", f"field {name!r} is at {at!r} but {places[0][0]!r} is at "
+                       f"{places[0][1]!r} (rule: every field lives at the same place)",
+                       f"task.fields.{name}.at")
+    return places[0][1] if places else "points"
+
+
+def _load(path: Path, place: str = "points") -> dict:
     """Raw arrays: ``pos``, ``arrays`` (node), ``graph_arrays``, ``edges``, ``header``."""
     try:
         if path.suffix.lower() == ".npz":
@@ -77,6 +108,13 @@ def _load(path: Path) -> dict:
         raise
     except Exception as exc:   # any reader failure means the file is unreadable for us
         raise _err(path, f"unreadable data file ({type(exc).__name__}: {exc})") from None
+    if place == "cells":
+        from searcher.data._cells import cell_graph
+
+        pos, pairs, arrays = cell_graph(mesh, path)
+        return {"pos": pos, "edges": pairs, "arrays": arrays,
+                "graph_arrays": {k: np.asarray(v) for k, v in mesh.field_data.items()},
+                "header": {}, "undirected": True}
     edges = []
     for block in mesh.cells:
         cells = np.asarray(block.data)
@@ -102,6 +140,8 @@ def declared_fields(task_cfg: dict) -> dict[str, Field]:
             raise _err(first, "no field declarations (rule: task.fields must declare each "
                        "field's kind, role and level, or an NPZ file must carry a header)",
                        "task.fields")
+    if origin == "task.fields":
+        field_place(task_cfg)
     fields = {}
     for name, spec in decl.items():
         key = f"{origin}.{name}"
@@ -115,6 +155,8 @@ def declared_fields(task_cfg: dict) -> dict[str, Field]:
         if role not in ("input", "target") or level not in ("node", "graph"):
             raise _err(where, "role must be input|target and level node|graph; got "
                        f"role={role!r}, level={level!r}", key)
+        if spec.get("at", "points") not in ("points", "cells"):
+            raise _err(where, f"at must be points or cells; got {spec.get('at')!r}", key)
         fields[name] = Field(name, kind, FIELD_KINDS[kind], role, level)
     targets = [f.name for f in fields.values() if f.role == "target"]
     if len(targets) != 1:
@@ -174,8 +216,12 @@ def _edges(path, raw, n: int) -> np.ndarray:
 def read_samples(task_cfg: dict, fields: dict[str, Field]) -> list[Sample]:
     """One :class:`Sample` per data file, fields converted to the irreps basis."""
     samples = []
-    for index, path in enumerate(data_files(task_cfg["source"])):
-        raw = _load(path)
+    place = field_place(task_cfg)
+    for index, (path, case) in enumerate(data_cases(task_cfg["source"])):
+        if place == "cells" and path.suffix.lower() == ".npz":
+            raise _err(path, "fields at cells need a VTK file with cell_data (an NPZ file "
+                       "holds node values only)", "task.fields")
+        raw = _load(path, place)
         pos = raw["pos"]
         if pos is None or np.asarray(pos).size == 0:
             raise _err(path, "empty data file (rule: a non-empty 'pos' array [N, 3] or [N, 2])",
@@ -188,7 +234,7 @@ def read_samples(task_cfg: dict, fields: dict[str, Field]) -> list[Sample]:
         pos = to_irreps("vector", pos)   # embeds 2D points in the plane z = 0
         values = {f.name: _field_values(path, f, raw, len(pos)) for f in fields.values()}
         edges = _edges(path, raw, len(pos)) if task_cfg.get("mesh_edges") else None
-        samples.append(Sample(pos, values, path.stem, index, source=str(path), edge_index=edges))
+        samples.append(Sample(pos, values, case, index, source=str(path), edge_index=edges))
     return samples
 
 

@@ -83,7 +83,8 @@ class Geometry(torch.nn.Module):
         self.sh = o3.SphericalHarmonics(sh_irreps, normalize=True, normalization="component")
         rad = cfg["radial"]
         self.radial = RadialEmbedding(rad["basis"], rad["count"], rad["cutoff"],
-                                      rad["envelope"], rad["power"])
+                                      rad["envelope"], rad["power"],
+                                      rad.get("scale", "absolute"))
         self.invariants = list(cfg["edge_invariants"])
         bad = [n for n in self.invariants if n not in EDGE_INVARIANTS]
         if bad:
@@ -127,9 +128,11 @@ class Geometry(torch.nn.Module):
             return data.edge_sh, data.edge_rbf
         return None
 
-    def compute(self, edge_vec: torch.Tensor) -> tuple[torch.Tensor, torch.Tensor]:
-        """``(edge_sh [E, sh.dim], edge_rbf [E, count])`` from relative positions."""
-        return self.sh(edge_vec), self.radial(edge_vec.norm(dim=-1))
+    def compute(self, edge_vec: torch.Tensor, receivers: torch.Tensor | None = None
+                ) -> tuple[torch.Tensor, torch.Tensor]:
+        """``(edge_sh [E, sh.dim], edge_rbf [E, count])`` from relative positions (and the
+        receiving node of each edge, which ``model.radial.scale: local`` needs)."""
+        return self.sh(edge_vec), self.radial(edge_vec.norm(dim=-1), receivers)
 
     def forward(self, data) -> EdgeContext:
         kept = getattr(data, "edge_context", None)
@@ -139,7 +142,7 @@ class Geometry(torch.nn.Module):
         n = int(data.pos.shape[0])
         batch, num_graphs = graph_batch(data)
         edge_vec = data.edge_vec
-        edge_sh, edge_rbf = self.cached(data) or self.compute(edge_vec)
+        edge_sh, edge_rbf = self.cached(data) or self.compute(edge_vec, dst)
         v = getattr(data, self.velocity) if self.velocity else None
         edge_attr = torch.cat([edge_sh, self.sh(getattr(data, self.extra)[src]
                                                 - getattr(data, self.extra)[dst])], -1) \
@@ -187,7 +190,8 @@ def attach_geometry(model: torch.nn.Module, data, *, context: bool = False) -> N
     geometry = model.geometry
     with torch.no_grad():
         # Geometry the graphs already carry (the trainer's on-disk store) is reused.
-        data.edge_sh, data.edge_rbf = geometry.cached(data) or geometry.compute(data.edge_vec)
+        data.edge_sh, data.edge_rbf = geometry.cached(data) or geometry.compute(
+            data.edge_vec, data.edge_index[1])
         data.edge_geometry = geometry.key
         if context:
             data.edge_context = (geometry.context_key, geometry(data))

@@ -4,6 +4,16 @@ Every basis maps distances ``d`` to ``count`` features on ``[0, cutoff]``; the e
 multiplies them so that messages fade smoothly to zero at the cutoff.  Normalisation
 constants follow e3nn's ``math.soft_one_hot_linspace`` (mean of the summed squares ≈ 1),
 so that the same definitions can be checked against it.
+
+Every basis is bounded on ``[0, cutoff]`` by a constant that does not depend on ``cutoff``
+or on ``d/cutoff``, so very short edges (wall-refined meshes span 3–5 decades of cell
+size) give features of order one rather than values that grow like ``1/d``.  The Bessel
+basis is therefore used in its normalised-sinc form: DimeNet's ``sqrt(2/c) sin(nπd/c)/d``
+divided by its limit ``sqrt(2/c) nπ/c`` at ``d → 0``, i.e. ``sin(nπx)/(nπx)``, ``x = d/c``,
+which lies in ``[-1, 1]`` and equals 1 at ``d = 0``.
+
+``scale: local`` divides each edge length by a local length scale, the mean length of the
+edges arriving at the edge's receiving node; the cutoff is then counted in those units.
 """
 from __future__ import annotations
 
@@ -14,7 +24,9 @@ import torch
 
 from ._registry import Registry
 
-__all__ = ["RADIAL_BASES", "ENVELOPES", "RadialEmbedding"]
+__all__ = ["RADIAL_BASES", "ENVELOPES", "RADIAL_SCALES", "RadialEmbedding", "local_lengths"]
+
+RADIAL_SCALES = ("absolute", "local")
 
 Basis = Callable[[torch.Tensor, torch.Tensor, float], torch.Tensor]
 RADIAL_BASES: Registry[Basis] = Registry("radial basis", "model.radial.basis")
@@ -33,11 +45,10 @@ def _gaussian(d: torch.Tensor, k: torch.Tensor, c: float) -> torch.Tensor:
 
 @RADIAL_BASES.register("bessel")
 def _bessel(d: torch.Tensor, k: torch.Tensor, c: float) -> torch.Tensor:
-    # DimeNet (Klicpera et al. 2020): sqrt(2/c) sin(nπd/c)/d.  At d = 0 the limit
-    # sqrt(2/c)·nπ/c is used, so self-distances never divide by zero.
-    safe = torch.where(d > 0, d, torch.ones_like(d))
-    value = math.sqrt(2 / c) * torch.sin(k * math.pi * d / c) / safe
-    return torch.where(d > 0, value, math.sqrt(2 / c) * k * math.pi / c)
+    # DimeNet (Klicpera et al. 2020) sqrt(2/c) sin(nπd/c)/d divided by its d → 0 limit
+    # sqrt(2/c)·nπ/c: sin(nπx)/(nπx), bounded by 1 whatever d/c (see the module docstring).
+    # torch.sinc(t) = sin(πt)/(πt) with sinc(0) = 1, so t = n·d/c.
+    return torch.sinc(k * d / c)
 
 
 @RADIAL_BASES.register("cosine")
@@ -102,18 +113,48 @@ class RadialEmbedding(torch.nn.Module):
         torch.Size([5, 8])
     """
 
-    def __init__(self, basis: str, count: int, cutoff: float, envelope: str, power: int) -> None:
+    def __init__(self, basis: str, count: int, cutoff: float, envelope: str, power: int,
+                 scale: str = "absolute") -> None:
         super().__init__()
-        self.basis_name, self.envelope_name = basis, envelope
+        if scale not in RADIAL_SCALES:
+            from searcher.errors import UserError
+
+            raise UserError.single(f"must be one of {', '.join(RADIAL_SCALES)}, but got "
+                                   f"{scale!r}", path="model.radial.scale")
+        self.basis_name, self.envelope_name, self.scale = basis, envelope, scale
         self.basis = RADIAL_BASES.get(basis)
         self.envelope = ENVELOPES.get(envelope)
         self.count, self.cutoff, self.power = int(count), float(cutoff), int(power)
         self.register_buffer("k", torch.arange(1, self.count + 1, dtype=torch.get_default_dtype()))
 
-    def forward(self, d: torch.Tensor) -> torch.Tensor:
+    def forward(self, d: torch.Tensor, receivers: torch.Tensor | None = None) -> torch.Tensor:
+        if self.scale == "local":
+            if receivers is None:
+                raise ValueError("scale 'local' needs the receiving node of every edge")
+            d = d / local_lengths(d, receivers)[receivers]
         d = d.unsqueeze(-1)
         return self.basis(d, self.k, self.cutoff) * self.envelope(d / self.cutoff, self.power)
 
     def extra_repr(self) -> str:
+        local = ", scale=local" if self.scale == "local" else ""
         return (f"{self.basis_name}, count={self.count}, cutoff={self.cutoff}, "
-                f"envelope={self.envelope_name}, power={self.power}")
+                f"envelope={self.envelope_name}, power={self.power}{local}")
+
+
+def local_lengths(d: torch.Tensor, receivers: torch.Tensor) -> torch.Tensor:
+    """Mean length of the edges arriving at each node (1 where none arrive).
+
+    Shapes:
+        ``d [E]``, ``receivers [E]`` → ``[max(receivers) + 1]``.
+
+    Example:
+        >>> local_lengths(torch.tensor([1., 3., 10.]), torch.tensor([0, 0, 1])).tolist()
+        [2.0, 10.0]
+    """
+    n = int(receivers.max()) + 1 if receivers.numel() else 0
+    total = torch.zeros(n, dtype=d.dtype, device=d.device).index_add_(0, receivers, d)
+    count = torch.zeros(n, dtype=d.dtype, device=d.device).index_add_(
+        0, receivers, torch.ones_like(d))
+    mean = total / count.clamp_min(1)
+    # A node whose edges all have length 0 (coincident points) keeps scale 1.
+    return torch.where(mean > 0, mean, torch.ones_like(mean))

@@ -120,7 +120,7 @@ def _check_fields(fields: dict, path: tuple, sink: Sink):
             continue
         for key, rule in Fields.keys.items():
             if key not in entry:
-                if key != "level":
+                if key not in ("level", "at"):
                     sink.add(f"field {name!r} needs {key!r} ({rule.problem(None)})", path + (name,))
             elif rule.problem(entry[key]):
                 sink.add(f"got {entry[key]!r}; allowed: {rule.problem(entry[key])}",
@@ -128,7 +128,16 @@ def _check_fields(fields: dict, path: tuple, sink: Sink):
         for key in entry:
             if key not in Fields.keys:
                 sink.add(f"unknown key {key!r}{did_you_mean(key, Fields.keys)}; allowed: "
-                         "kind, role, level", path + (name, key), key=True)
+                         "kind, role, level, at", path + (name, key), key=True)
+    # Node positions are either the mesh points or the cell centroids, never both at once.
+    places = [(name, e.get("at", "points")) for name, e in fields.items() if isinstance(e, dict)]
+    first = places[0] if places else None
+    for name, at in places:
+        if at != first[1] and at in ("points", "cells"):
+            sink.add(f"field {name!r} is at {at!r} but {first[0]!r} is at {first[1]!r}; rule: "
+                     "every field of a study lives at the same place (points or cells)",
+                     path + (name, "at"))
+            break
 
 
 def _possible(dotted: str, dims: dict, fixed: dict) -> list | None:

@@ -195,7 +195,7 @@ class Fractions(Rule):
 
 
 _FIELD_KEYS = {"kind": OneOf(tuple(FIELD_KINDS)), "role": OneOf(("input", "target")),
-               "level": OneOf(("node", "graph"))}
+               "level": OneOf(("node", "graph")), "at": OneOf(("points", "cells"))}
 
 
 @dataclass(frozen=True)
@@ -236,8 +236,9 @@ RULES: dict[str, Rule] = {
     "task.graph.rule": OneOf(("radius", "neighbours")), "task.graph.radius": _POS,
     "task.graph.neighbours": Whole(1), "task.graph.edge_cap": Whole(0),
     "task.split.fractions": Fractions(), "task.split.seed": Whole(0),
-    "task.split.hold_out": Names(DEMO_FAMILIES), "task.split.stress": Names(STRESS_SETS),
-    "task.split.shift": Real(0),
+    "task.split.hold_out": Names(), "task.split.stress": Names(STRESS_SETS),
+    "task.split.shift": Real(0), "task.split.by": OneOf(("case", "sample")),
+    "task.patches.size": Whole(0), "task.patches.halo": Whole(0),
     "task.fidelity.train_fraction": Real(0, 1, lo_open=True), "task.fidelity.probes": Whole(0),
     "model.family": OneOf(REGISTERED["model.family"]),
     "model.hidden.irreps": Irreps(), "model.hidden.lmax": Whole(0, 8),
@@ -254,6 +255,7 @@ RULES: dict[str, Rule] = {
     "model.radial.count": Whole(1, 128), "model.radial.cutoff": _POS,
     "model.radial.envelope": OneOf(REGISTERED["model.radial.envelope"]),
     "model.radial.power": Whole(1, 32),
+    "model.radial.scale": OneOf(("absolute", "local")),
     "model.layers": Whole(1, 32), "model.norm": OneOf(("none", "batch", "instance")),
     "model.residual": Flag(), "model.input_products": Flag(), "model.aggregate": OneOf(("sum", "mean", "degree")),
     "model.activation": OneOf(REGISTERED["model.activation"]),

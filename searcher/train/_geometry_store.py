@@ -47,7 +47,10 @@ def geometry_key(dataset, config: dict, geometry, dtype: torch.dtype, full: bool
 
 def _compute(geometry, graphs: list, counts: list[int]) -> dict:
     with torch.no_grad():
-        sh, rbf = geometry.compute(torch.cat([g.edge_vec for g in graphs]))
+        # Receivers offset per graph, as in a batch (model.radial.scale: local reads them).
+        offsets = torch.cumsum(torch.tensor([0] + [g.num_nodes for g in graphs[:-1]]), 0)
+        receivers = torch.cat([g.edge_index[1] + o for g, o in zip(graphs, offsets)])
+        sh, rbf = geometry.compute(torch.cat([g.edge_vec for g in graphs]), receivers)
     return {"counts": counts, "edge_sh": sh.contiguous(), "edge_rbf": rbf.contiguous()}
 
 
