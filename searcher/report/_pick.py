@@ -88,7 +88,12 @@ def decide(finalists: list[dict], *, seed: int = 0) -> tuple[dict, Outperform | 
         else:
             small = min((best, runner), key=lambda f: f["cost"].get("params") or math.inf)
             chosen = small
-            reasons.append(f"{said}: not enough to separate them, so we take the smaller "
+            why = ("tied by the criterion of Bouthillier et al. (2021)"
+                   if duel.conclusion == "tied" else
+                   f"undecided ({duel.note or 'too few paired seeds'}; about "
+                   f"{duel.seeds_needed} paired seeds would settle it at this spread)"
+                   if duel.seeds_needed else f"undecided ({duel.note})")
+            reasons.append(f"{said}: {why}, so we take the smaller "
                            f"model, {small['label']} ({fmt(small['cost'].get('params'))} "
                            "parameters).")
             change.append(f"Seeds showing one of {best['label']}/{runner['label']} clearly "

@@ -86,10 +86,12 @@ def _head_to_head(c: dict) -> list:
     duel = c.get("p_a_beats_b")
     if duel:
         verdict = {"a": f"{duel['a']} is better", "b": f"{duel['b']} is better",
-                   "neither": "no clear winner"}[duel["conclusion"]]
-        out += [("table", ["comparison", "P(A beats B)", "interval", "paired seeds", "verdict"],
+                   "tied": "tied", "undecided": "undecided"}[duel["conclusion"]]
+        out += [("table", ["comparison", "P(A beats B)", "exact interval", "sign-flip p",
+                           "paired seeds", "seeds to settle", "verdict"],
                  [[f"A = {duel['a']}, B = {duel['b']}", fmt(duel["p"]),
-                   f"[{fmt(duel['low'])}, {fmt(duel['high'])}]", str(duel["n"]), verdict]]),
+                   f"[{fmt(duel['low'])}, {fmt(duel['high'])}]", fmt(duel.get("p_value")),
+                   str(duel["n"]), fmt(duel.get("seeds_needed")), verdict]]),
                 ("list", [duel["rule"]] + ([duel["note"]] if duel["note"] else []))]
     else:
         out.append(("text", "Only one finalist: nothing to compare."))
@@ -123,8 +125,13 @@ def _symmetry_cost(c: dict) -> list:
 
 def _transfer(c: dict) -> list:
     t = c["fidelity_transfer"]
-    text = (f"Spearman rho between search-time loss and dossier test error over {t['n']} "
-            f"configurations: {fmt(t['rho'])} (p = {fmt(t['p_value'])}).")
+    if t.get("too_thin", True):
+        text = (f"Too thin to judge: {t['n']} configurations have both a search-time loss and "
+                f"a dossier test error; a rank correlation needs at least 5.")
+    else:
+        text = (f"Spearman rho between search-time loss and dossier test error over {t['n']} "
+                f"configurations: {fmt(t['rho'])} (exact permutation p = "
+                f"{fmt(t['p_value'])}; Kendall tau {fmt(t.get('tau'))}).")
     return [("text", text), ("list", [t["note"]] if t["note"] else []), ("plot", "transfer")]
 
 

@@ -59,10 +59,11 @@ def test_clear_win_picks_the_more_accurate():
 
 
 def test_tie_picks_the_smaller_model():
-    a = _finalist("F1", [0.10, 0.30, 0.10, 0.30], 900)
-    b = _finalist("F2", [0.20, 0.20, 0.20, 0.20], 100)
+    a = _finalist("F1", [0.10, 0.30, 0.10, 0.30, 0.10, 0.30], 900)
+    b = _finalist("F2", [0.20, 0.20, 0.20, 0.20, 0.20, 0.20], 100)
     pick, duel = decide([a, b])
-    assert duel.conclusion == "neither" and pick["label"] == "F2"
+    # Hand: F1 wins 3 of 6 paired seeds, P = 0.5: tied (Bouthillier et al. 2021, memory)
+    assert duel.conclusion == "tied" and pick["label"] == "F2"
     assert any("smaller model" in r for r in pick["reasons"])
 
 
