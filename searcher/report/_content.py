@@ -21,6 +21,8 @@ import numpy as np
 
 from searcher.report._cautions import cautions_for
 from searcher.report._pick import decide
+from searcher.report._pick import judge_against_baselines
+from searcher.report._references import skill_scores
 from searcher.report._stats import rank_stability, seed_interval, transfer
 
 __all__ = ["FORMAT", "assemble", "summarise_finalist"]
@@ -56,7 +58,8 @@ def _score_matrix(finalists: list[dict]) -> np.ndarray:
 
 
 def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: dict,
-             files: dict, warnings: list[str] | None = None, seed: int = 0) -> dict:
+             files: dict, warnings: list[str] | None = None, seed: int = 0,
+             baselines: list[dict] | None = None) -> dict:
     """The whole dossier content (what the JSON file holds).
 
     Args:
@@ -67,10 +70,17 @@ def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: 
         files: what is written where (names relative to the dossier folder).
         warnings: notes from choosing and re-training the finalists.
         seed: seeds every bootstrap.
+        baselines: reference predictors scored on the same splits
+            (:func:`searcher.report._references.score_references`).
     """
     summed = [summarise_finalist(f, confidence=settings["confidence"], seed=seed)
               for f in finalists]
+    baselines = list(baselines or [])
+    for f in summed:
+        f["skill"] = skill_scores(f["metrics"]["error"]["mean"], baselines)
     pick, duel = decide(summed, seed=seed)
+    judge_against_baselines(pick, summed, baselines)
+    control = next((f for f in summed if f["role"] == "control"), None)
     content = {
         "format": FORMAT,
         "study": study,
@@ -83,6 +93,9 @@ def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: 
              for f in summed],
             [f["metrics"]["error"]["mean"] for f in summed]).to_dict(),
         "pick": pick,
+        "baselines": baselines,
+        "control": ({"label": control["label"], "origin": control["origin"],
+                     "config": control["config"]} if control else None),
         "warnings": list(warnings or []),
         "provenance": provenance,
         "files": files,

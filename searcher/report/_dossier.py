@@ -130,12 +130,16 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
                 progress(f"{cand.label} seed {seed}: {rec['status']}, test error "
                          f"{rec['error']:.4g}, {rec['cpu_seconds']:.1f} CPU-s")
         records.append(fin)
+    from searcher.report._references import score_references
+
+    baselines = score_references(dataset) if records else []
     files = {**FILES, "plots": plot_files()}
     summary = fixed["study"]
     content = assemble(
         study={"name": study.name, "summary": summary["summary"], "team": summary["team"],
                "path": str(study.path), "hash": study.hash},
         settings=settings, finalists=records, files=files, warnings=notes,
+        baselines=baselines,
         provenance=provenance(study_path=study.path, study_hash=study.hash,
                               data_hash=data_hash, started=started,
                               device=settings["device"]))

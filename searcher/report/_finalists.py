@@ -91,16 +91,12 @@ def choose_finalists(study, records, analysis: dict | None, k: int) -> tuple[lis
         notes.append(f"Only {len(chosen)} distinct finalist(s) available from the {source}.")
     out = [Candidate(f"F{i + 1}", "finalist", f"trial {r.number}, {source}", r.number,
                      r.best_value, copy.deepcopy(r.config)) for i, r in enumerate(chosen)]
-    baselines = [r for r in ranked if r.config["model"]["family"] in BASELINES]
-    if baselines:
-        b = baselines[0]
-        out.append(Candidate("C", "control", f"trial {b.number}, best baseline", b.number,
-                             b.best_value, copy.deepcopy(b.config)))
-    else:
-        cfg = study.fixed()
-        cfg["model"]["family"] = "coord_mlp"
-        out.append(Candidate("C", "control", "the study's fixed config as coord_mlp", None,
-                             None, cfg))
-        notes.append("The study tried no baseline family; the control is its fixed "
-                     "configuration trained as coord_mlp.")
+    # The fair control: the first finalist's own configuration (inputs, target, depth,
+    # training) with the message-passing baseline family on raw Cartesian components.
+    base = out[0].config if out else study.fixed()
+    cfg = copy.deepcopy(base)
+    cfg["model"]["family"] = "coord_mlp"
+    origin = (f"{out[0].label}'s configuration as coord_mlp" if out else
+              "the study's fixed config as coord_mlp")
+    out.append(Candidate("C", "control", origin, None, None, cfg))
     return out, notes

@@ -130,3 +130,27 @@ def decide(finalists: list[dict], *, seed: int = 0) -> tuple[dict, Outperform | 
                 f"{chosen['origin']}) as the configuration to carry forward.")
     return {"label": chosen["label"], "decision": decision, "reasons": reasons,
             "would_change": change}, duel
+
+
+def judge_against_baselines(pick: dict, finalists: list[dict], baselines: list[dict]) -> None:
+    """Set ``pick["beats_baselines"]`` from the chosen finalist's skill scores, and withdraw
+    the recommendation when it does not beat every reference predictor."""
+    chosen = next((f for f in finalists if f["label"] == pick["label"]), None)
+    skill = (chosen or {}).get("skill") or {}
+    if not baselines or chosen is None:
+        pick["beats_baselines"] = None
+        return
+    losing = [b for b in baselines if not skill.get(b["name"], -1.0) > 0]
+    pick["beats_baselines"] = not losing
+    best = min(baselines, key=lambda b: b["test_error"])
+    if losing:
+        names = ", ".join(f"{b['name']} (test error {fmt(b['test_error'])})" for b in losing)
+        pick["reasons"].append(f"It does not beat the reference predictor(s) {names}: its "
+                               f"mean test error is {fmt(chosen['metrics']['error']['mean'])}.")
+        pick["decision"] = (f"Do not carry {chosen['label']} forward: a reference that needs "
+                            f"no training does as well or better ({names}).")
+    else:
+        pick["reasons"].append(
+            f"It beats every reference predictor; against the strongest, {best['name']} (test "
+            f"error {fmt(best['test_error'])}), its skill score is "
+            f"{fmt(skill[best['name']])} (1 − error / reference error).")

@@ -21,6 +21,7 @@ SECTION_TITLES = {
     "contenders": "The contenders",
     "seeds": "Seed by seed",
     "head-to-head": "Head to head",
+    "references": "Against what needs no training",
     "stress": "Off the training distribution",
     "symmetry-cost": "Symmetry, size and speed",
     "transfer": "Cheap scores against full training",
@@ -152,6 +153,26 @@ def _origin(c: dict) -> list:
     return [("table", ["item", "value"], rows)]
 
 
+def _references(c: dict) -> list:
+    base = c.get("baselines") or []
+    if not base:
+        return [("text", "No reference predictor applies to this data.")]
+    fins = c["finalists"]
+    rows = [[b["name"], b["kind"], fmt(b["test_error"])]
+            + [fmt((f.get("skill") or {}).get(b["name"])) for f in fins] for b in base]
+    beats = c["pick"].get("beats_baselines")
+    verdict = ("The choice beats every reference predictor." if beats else
+               "The choice does NOT beat every reference predictor; it is not recommended."
+               if beats is False else "")
+    return [("text", "Test error (the dossier's error: mean relative L2 over the target's "
+                     "irrep blocks) of predictors that need no training, and each finalist's "
+                     "skill score 1 − error / reference error (> 0: better than the "
+                     "reference)."),
+            ("table", ["reference", "kind", "test error"] + [f"skill {f['label']}"
+                                                             for f in fins], rows),
+            ("text", verdict)]
+
+
 def _files(c: dict) -> list:
     return [("table", ["what", "file"], [[k, str(v)] for k, v in c["files"].items()
                                          if not isinstance(v, list)]
@@ -160,6 +181,7 @@ def _files(c: dict) -> list:
 
 BUILDERS = {"choice": _choice, "before-use": lambda c: [("list", c["cautions"])],
             "contenders": _contenders, "seeds": _seeds, "head-to-head": _head_to_head,
+            "references": _references,
             "stress": _stress, "symmetry-cost": _symmetry_cost, "transfer": _transfer,
             "settings": _settings, "origin": _origin, "files": _files}
 

@@ -26,6 +26,34 @@ def test_json_holds_the_contracted_keys(dossier):
     assert saved["pick"]["reasons"] and saved["pick"]["would_change"]
 
 
+def test_baselines_skill_and_verdicts_are_consistent(dossier):
+    _, content = dossier
+    names = [b["name"] for b in content["baselines"]]
+    assert names[:2] == ["zero", "training mean"] and "eddy viscosity" in names
+    for b in content["baselines"]:
+        assert b["test_error"] > 0 and set(b["stress"]) == STRESS
+    # derived: predicting zero has relative L2 error exactly 1 on every set
+    zero = content["baselines"][0]
+    assert abs(zero["test_error"] - 1.0) < 1e-9
+    assert all(abs(v - 1.0) < 1e-9 for v in zero["stress"].values())
+    for fin in content["finalists"]:
+        for b in content["baselines"]:
+            expect = 1 - fin["metrics"]["error"]["mean"] / b["test_error"]
+            assert abs(fin["skill"][b["name"]] - expect) < 1e-12
+    chosen = next(f for f in content["finalists"] if f["label"] == content["pick"]["label"])
+    beats = all(v > 0 for v in chosen["skill"].values())
+    assert content["pick"]["beats_baselines"] is beats
+    if not beats:
+        assert content["pick"]["decision"].startswith("Do not carry")
+    duel = content["p_a_beats_b"]
+    # two seeds in the test dossier: below the 5 a verdict needs
+    assert duel is None or (duel["n"] < 5 and duel["conclusion"] == "undecided")
+    assert content["fidelity_transfer"]["too_thin"]
+    first = next(f for f in content["finalists"] if f["label"] == "F1")
+    assert content["control"]["config"]["model"]["node_inputs"] == \
+        first["config"]["model"]["node_inputs"]
+
+
 def test_every_written_file_exists(dossier):
     _, content = dossier
     folder = Path(content["folder"])

@@ -33,7 +33,10 @@ def test_finalists_from_good_group_and_a_fixed_control(study_file):
     control = cands[-1]
     assert control.role == "control" and control.trial is None
     assert control.config["model"]["family"] == "coord_mlp"
-    assert any("no baseline" in n for n in notes)
+    # the fair control keeps the first finalist's inputs and depth (issue: a fair control)
+    first = next(c for c in cands if c.label == "F1")
+    assert control.config["model"]["node_inputs"] == first.config["model"]["node_inputs"]
+    assert control.config["model"]["layers"] == first.config["model"]["layers"]
     cands, notes = choose_finalists(study, records, None, 1)
     assert [c.trial for c in cands] == [1, None] and any("No good group" in n for n in notes)
     with pytest.raises(UserError):
