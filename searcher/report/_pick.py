@@ -118,8 +118,11 @@ def decide(finalists: list[dict], *, seed: int = 0) -> tuple[dict, Outperform | 
                            f"(P = {fmt(vs.p)}).")
         else:
             c_name, c_ratio = _worst_stress(control)
+            how = (f"{vs.conclusion}; about {vs.seeds_needed} paired seeds would settle it"
+                   if vs.conclusion == "undecided" and vs.seeds_needed else vs.conclusion)
             reasons.append(f"The non-equivariant control {control['label']} is not clearly "
-                           f"worse in distribution (P = {fmt(vs.p)}); the case for symmetry "
+                           f"worse in distribution (P = {fmt(vs.p)} over {vs.n} paired seeds, "
+                           f"{how}); the case for symmetry "
                            f"rests on the stress sets (control's worst: {c_name} "
                            f"×{fmt(c_ratio, 3)}).")
         change.append(f"The control {control['label']} matching the choice on the stress sets "
