@@ -70,9 +70,9 @@ def _handle(args: argparse.Namespace) -> int:
     tracking = summary.tracking if summary.tracking != "off" else None
     res = analyze(study, open_store(study), out / "analysis", mlflow_uri=tracking)
     print(res.get("summary") or res.get("message") or "analysis done")
-    # Two finalists and the control, 5 seeds of 20 epochs each: the demo's time budget.
+    # Two finalists and the control, 5 seeds of 10 epochs each: the demo's time budget.
     make_dossier(study, quick=args.quick, finalists=None if args.quick else 2,
-                 epochs=None if args.quick else 20, progress=print)
+                 epochs=None if args.quick else 10, progress=print)
     reports = [f"analysis: {out / 'analysis'}", f"dossier:  {out / 'dossier'}"]
     for line in where_lines(summary) + reports:
         print(line)
