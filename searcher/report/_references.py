@@ -29,9 +29,10 @@ class _Reference(torch.nn.Module):
         super().__init__()
         self.name, self.kind = dataset.target.name, kind
         self.normaliser = dataset.normaliser
-        train = [dataset.graphs[i] for i in dataset.split["train"]]
-        values = torch.cat([getattr(g, self.name) for g in train]).double()
-        self.mean = values.mean(0)
+        self.mean = None
+        if kind == "training mean":   # only this reference reads the training nodes
+            train = [dataset.graphs[i] for i in dataset.split["train"]]
+            self.mean = torch.cat([getattr(g, self.name) for g in train]).double().mean(0)
 
     def forward(self, data) -> torch.Tensor:
         like = getattr(data, self.name)
