@@ -23,6 +23,7 @@ from searcher.data._files import data_files, declared_fields, read_samples
 from searcher.data._graphs import build_edges, graph_stats, to_data
 from searcher.data._kinds import Field
 from searcher.data._normaliser import Normaliser
+from searcher.data._patches import cut_samples, patch_census
 from searcher.data._cases import check_hold_out, split_by_case
 from searcher.data._splits import stress_sets
 from searcher.errors import UserError
@@ -90,8 +91,8 @@ class Dataset:
 
 def _to_graph(task_cfg: dict, s: Sample, norm: Normaliser, counters: dict):
     graph = task_cfg["graph"]
-    if task_cfg.get("mesh_edges") and s.edge_index is not None:
-        edges = s.edge_index
+    if s.edge_index is not None and (task_cfg.get("mesh_edges") or "core" in s.info):
+        edges = s.edge_index   # mesh edges, or a patch's edges built when it was cut
     else:
         edges, dropped = build_edges(s.pos, graph["rule"], graph["radius"], graph["neighbours"],
                                      int(graph["edge_cap"]))
@@ -104,7 +105,12 @@ def _to_graph(task_cfg: dict, s: Sample, norm: Normaliser, counters: dict):
             file=s.source if s.source != "demo" else "", path="task.graph.radius")
     counters["realizability_scaled"] += int(s.info.get("realizability_scaled", 0))
     values = {k: norm.apply(k, v) for k, v in s.fields.items()}
-    return to_data(s.pos, edges, values, s.family, s.sample)
+    data = to_data(s.pos, edges, values, s.family, s.sample)
+    if "core" in s.info:
+        import torch
+
+        data.core = torch.as_tensor(s.info["core"])   # halo nodes: messages only
+    return data
 
 
 def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
@@ -112,6 +118,14 @@ def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
         samples = demo_samples(task_cfg["demo"])
     else:
         samples = read_samples(task_cfg, fields)
+    census = None
+    if int((task_cfg.get("patches") or {}).get("size", 0)) > 0 and task_cfg["source"] != "demo":
+        file_nodes = {s.source: len(s.pos) for s in samples}
+        files = len(samples)
+        samples = cut_samples(samples, task_cfg)
+        census = dict(patch_census(samples, file_nodes), files=files,
+                      size=int(task_cfg["patches"]["size"]),
+                      halo=int(task_cfg["patches"].get("halo", 0)))
     hold = set(task_cfg["split"]["hold_out"])
     if task_cfg["source"] != "demo":
         check_hold_out(hold, {s.family for s in samples}, task_cfg["source"])
@@ -137,7 +151,7 @@ def _build(task_cfg: dict, fields: dict[str, Field], digest: str) -> Dataset:
              "stress": {k: len(v) for k, v in stress.items()}, "stress_notes": notes,
              "families": sorted({s.family for s in kept}),
              "held_out": sorted({s.family for s in held}),
-             "split_by": split_by, "cases": _case_parts(kept, split, held),
+             "split_by": split_by, **({"patches": census} if census else {}), "cases": _case_parts(kept, split, held),
              **counters}
     return Dataset(fields, graphs, split, stress, norm, digest, stats)
 
@@ -183,7 +197,7 @@ def _save_cache(path: Path, ds: Dataset) -> None:
     for name, graphs in sets.items():
         labels[name] = [[g.family, g.sample] for g in graphs]
         for i, g in enumerate(graphs):
-            for attr in _ATTRS + tuple(ds.fields):
+            for attr in _ATTRS + tuple(ds.fields) + (("core",) if "core" in g else ()):
                 arrays[f"{name}|{i}|{attr}"] = getattr(g, attr).numpy()
     meta = {"split": ds.split, "normaliser": ds.normaliser.to_dict(), "stats": ds.stats,
             "fields": {k: f.to_dict() for k, f in ds.fields.items()}, "labels": labels}
@@ -205,10 +219,13 @@ def _load_cache(path: Path, fields: dict[str, Field], digest: str) -> Dataset:
 
     with np.load(path, allow_pickle=False) as z:
         meta = json.loads(str(z["meta"]))
+        stored = set(z.files)
         sets = {}
         for name, labels in meta["labels"].items():
             sets[name] = [Data(**{a: torch.as_tensor(z[f"{name}|{i}|{a}"])
-                                  for a in _ATTRS + tuple(fields)}, family=fam, sample=int(num))
+                                  for a in _ATTRS + tuple(fields) + ("core",)
+                                  if a != "core" or f"{name}|{i}|core" in stored},
+                               family=fam, sample=int(num))
                           for i, (fam, num) in enumerate(labels)]
     stress = {k.split(".", 1)[1]: v for k, v in sets.items() if k.startswith("stress.")}
     return Dataset(fields, sets["graphs"], meta["split"], stress,

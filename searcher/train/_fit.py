@@ -27,7 +27,7 @@ from ._batches import TrainBatches, collate
 from ._checkpoint import save_weights
 from ._fidelity import fidelity_graphs
 from ._geometry_store import with_geometry
-from ._metrics import predict_errors
+from ._metrics import core_rows, predict_errors
 from ._schedule import Schedule, make_optimiser
 
 __all__ = ["fit", "FitResult", "pick_device"]
@@ -73,8 +73,8 @@ def pick_device(training: dict) -> torch.device:
 
 def _zero_loss(batches, target: str) -> float:
     """Validation loss of predicting zero everywhere (the normalised target's mean square)."""
-    sq = sum(float((getattr(b, target) ** 2).sum()) for b in batches)
-    n = sum(getattr(b, target).numel() for b in batches)
+    sq = sum(float((core_rows(b, getattr(b, target)) ** 2).sum()) for b in batches)
+    n = sum(core_rows(b, getattr(b, target)).numel() for b in batches)
     return sq / n if n else math.inf
 
 
@@ -132,8 +132,8 @@ def fit(model: torch.nn.Module, dataset, config: dict, *,
         sq, items, bad_step = 0.0, 0, 0
         for step, batch in enumerate(batches.epoch(), 1):
             optimiser.zero_grad(set_to_none=True)
-            true = getattr(batch, target)
-            loss = torch.mean((model(batch) - true) ** 2)
+            true = core_rows(batch, getattr(batch, target))
+            loss = torch.mean((core_rows(batch, model(batch)) - true) ** 2)
             if not torch.isfinite(loss):
                 bad_step = step
                 break

@@ -14,7 +14,7 @@ import math
 import torch
 from e3nn import o3
 
-__all__ = ["target_blocks", "BlockErrors", "evaluate", "ZERO_BLOCK"]
+__all__ = ["target_blocks", "BlockErrors", "core_rows", "evaluate", "ZERO_BLOCK"]
 
 # A block counts as zero when its RMS is below this fraction of the whole target's RMS.
 ZERO_BLOCK = 1e-6
@@ -84,6 +84,15 @@ class BlockErrors:
         return out
 
 
+def core_rows(batch, rows: torch.Tensor) -> torch.Tensor:
+    """Only the core nodes' rows of a node-level tensor when the graphs are patches (their
+    halo nodes pass messages but carry no loss or metric); anything else as given."""
+    core = getattr(batch, "core", None)
+    if core is None or rows.shape[0] != core.shape[0]:
+        return rows
+    return rows[core]
+
+
 @torch.inference_mode()
 def predict_errors(model: torch.nn.Module, batches, dataset) -> BlockErrors:
     """Run ``model`` over collated ``batches`` and accumulate :class:`BlockErrors`."""
@@ -91,7 +100,7 @@ def predict_errors(model: torch.nn.Module, batches, dataset) -> BlockErrors:
     model.eval()
     acc = BlockErrors(dataset)
     for batch in batches:
-        acc.add(model(batch), getattr(batch, acc.name))
+        acc.add(core_rows(batch, model(batch)), core_rows(batch, getattr(batch, acc.name)))
     model.train(was_training)
     return acc
 
