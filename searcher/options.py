@@ -9,10 +9,14 @@ need; this table is what both sides share.
 """
 from __future__ import annotations
 
-__all__ = ["REGISTERED", "declared"]
+__all__ = ["AUGMENT_MODES", "REGISTERED", "declared"]
+
+# ``model.augment``: how a non-equivariant baseline's training frames are drawn
+# (``searcher.models._frames``).
+AUGMENT_MODES: tuple[str, ...] = ("none", "rotate", "rotate_reflect")
 
 REGISTERED: dict[str, tuple[str, ...]] = {
-    "model.family": ("steerable", "gated", "node_mlp", "coord_mlp"),
+    "model.family": ("steerable", "gated", "node_mlp", "coord_mlp", "tensor_basis"),
     "model.radial.basis": ("gaussian", "bessel", "cosine", "smooth_finite", "fourier"),
     "model.radial.envelope": ("polynomial", "cosine"),
     "model.activation": ("silu", "tanh", "gelu", "softplus", "relu"),

@@ -2,7 +2,8 @@
 
 Both read the raw components of their inputs as plain numbers; ``coord_mlp`` also sees the
 raw relative coordinates ``edge_vec``, so rotations change its output.  The gate measures
-their equivariance error and never rejects them.
+their equivariance error and never rejects them.  ``model.augment`` trains them on randomly
+turned (``rotate``) or turned and mirrored (``rotate_reflect``) frames (:mod:`._frames`).
 """
 from __future__ import annotations
 
@@ -11,6 +12,7 @@ from torch_geometric.utils import scatter
 
 from ._base import FAMILIES, FieldModel
 from ._blocks import Aggregate, per_edge
+from ._frames import FrameTurn
 from ._geometry import graph_batch
 from ._registry import activation
 
@@ -40,6 +42,10 @@ class _Act(torch.nn.Module):
 class _Baseline(FieldModel):
     equivariant = False
 
+    def __init__(self, cfg: dict, fields: dict, target: str) -> None:
+        super().__init__(cfg, fields, target)
+        self.turn = FrameTurn(self.irreps_in, self.irreps_out, cfg.get("augment", "none"))
+
     def pool(self, out: torch.Tensor, batch: torch.Tensor, num_graphs: int) -> torch.Tensor:
         if self.graph_level:
             return scatter(out, batch, 0, dim_size=num_graphs, reduce="mean")
@@ -58,7 +64,10 @@ class NodeMLP(_Baseline):
 
     def forward(self, data) -> torch.Tensor:
         batch, num_graphs = graph_batch(data)
-        return self.pool(self.mlp(self.read_inputs(data, batch)), batch, num_graphs)
+        x = self.read_inputs(data, batch)
+        turn = self.turn.draw(x, self.training)
+        out = self.pool(self.mlp(FrameTurn.inputs(turn, x)), batch, num_graphs)
+        return FrameTurn.back(turn, out)
 
 
 @FAMILIES.register("coord_mlp")
@@ -83,12 +92,15 @@ class CoordMLP(_Baseline):
         batch, num_graphs = graph_batch(data)
         src, dst = data.edge_index[0], data.edge_index[1]
         ctx = _Ctx(dst, data.pos.shape[0])
-        h = self.embed(self.read_inputs(data, batch))
-        rel = torch.cat([data.edge_vec, data.edge_vec.norm(dim=-1, keepdim=True)], -1)
+        x = self.read_inputs(data, batch)
+        turn = self.turn.draw(x, self.training)
+        h = self.embed(FrameTurn.inputs(turn, x))
+        vec = FrameTurn.vectors(turn, data.edge_vec)
+        rel = torch.cat([vec, vec.norm(dim=-1, keepdim=True)], -1)
         for message, update in zip(self.messages, self.updates):
             m = self.aggregate(message(torch.cat([h[dst], h[src], rel], -1)), ctx)
             h = h + update(torch.cat([h, m], -1))
-        return self.pool(self.out(h), batch, num_graphs)
+        return FrameTurn.back(turn, self.pool(self.out(h), batch, num_graphs))
 
 
 class _Ctx:

@@ -5,7 +5,7 @@ import torch
 
 from ._base import FAMILIES
 # Importing the family modules fills the registry.
-from . import _baselines, _gated, _steerable  # noqa: F401
+from . import _baselines, _gated, _steerable, _tensor_basis  # noqa: F401
 from ._build_cache import install, lean_codegen, unfused
 from ._fused import fuse_products
 

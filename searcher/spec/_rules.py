@@ -10,7 +10,7 @@ import math
 import re
 from dataclasses import dataclass
 
-from searcher.options import REGISTERED
+from searcher.options import AUGMENT_MODES, REGISTERED
 from searcher.spec._irreps import FIELD_KINDS, parse_irreps
 
 __all__ = ["Rule", "Whole", "Real", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
@@ -260,6 +260,7 @@ RULES: dict[str, Rule] = {
     "model.residual": Flag(), "model.input_products": Flag(), "model.aggregate": OneOf(("sum", "mean", "degree")),
     "model.activation": OneOf(REGISTERED["model.activation"]),
     "model.width": Whole(1, 4096),
+    "model.augment": OneOf(AUGMENT_MODES),
     "training.epochs": Whole(1), "training.batch_size": Whole(1),
     "training.optimiser": OneOf(("adam", "adamw")), "training.learning_rate": _POS,
     "training.weight_decay": Real(0), "training.schedule": OneOf(("constant", "cosine", "plateau")),
