@@ -97,20 +97,28 @@ class TensorBasisNet(FieldModel):
         start = dict(zip(self.inputs, np.cumsum([0] + dims[:-1]).tolist()))
         self.strain_at, self.rotation_at = start[strain[0]], start[rotation[0]]
         self.strain_trace = self.fields[strain[0]].kind == "symmetric_tensor"
-        basis = to_cartesian("traceless_symmetric_tensor", np.eye(5))
-        self.register_buffer("basis", torch.as_tensor(basis, dtype=torch.get_default_dtype()))
-        self.register_buffer("levi", torch.as_tensor(_LEVI, dtype=torch.get_default_dtype()))
+        # Constants kept in float64 and cast per call: a float32 copy of the 2e basis (entries
+        # such as 1/√6) would cost the float64 gate its exactness.
+        self._constants = {None: (to_cartesian("traceless_symmetric_tensor", np.eye(5)), _LEVI)}
         w = int(cfg["width"])
         self.coefficients = _MLP([5] + [w] * int(cfg["layers"]) + [10], cfg["activation"])
 
     def forward(self, data) -> torch.Tensor:
         batch, _ = graph_batch(data)
         x = self.read_inputs(data, batch)
+        basis, levi = self._cast(x)
         a = self.strain_at + (1 if self.strain_trace else 0)   # 0e+2e: skip the trace row
-        s = torch.einsum("nk,kij->nij", x[:, a:a + 5], self.basis.to(x.dtype))
+        s = torch.einsum("nk,kij->nij", x[:, a:a + 5], basis)
         omega = x[:, self.rotation_at:self.rotation_at + 3]
-        w = -0.5 * torch.einsum("ijk,nk->nij", self.levi.to(x.dtype), omega)
+        w = -0.5 * torch.einsum("ijk,nk->nij", levi, omega)
         g = self.coefficients(invariants(s, w))
         b = torch.einsum("nm,nmij->nij", g, integrity_basis(s, w))
-        return torch.einsum("nij,kij->nk", b, self.basis.to(x.dtype))
+        return torch.einsum("nij,kij->nk", b, basis)
+
+    def _cast(self, like: torch.Tensor):
+        key = (like.dtype, like.device)
+        if key not in self._constants:
+            self._constants[key] = tuple(torch.as_tensor(c, dtype=like.dtype, device=like.device)
+                                         for c in self._constants[None])
+        return self._constants[key]
 

@@ -20,6 +20,8 @@ import math
 import numpy as np
 
 from searcher.report._cautions import cautions_for
+from searcher.report._finalist_measure import ERROR_DEFINITION
+from searcher.report._front import cost_front
 from searcher.report._pick import decide
 from searcher.report._pick import judge_against_baselines
 from searcher.report._references import skill_scores
@@ -59,7 +61,8 @@ def _score_matrix(finalists: list[dict]) -> np.ndarray:
 
 def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: dict,
              files: dict, warnings: list[str] | None = None, seed: int = 0,
-             baselines: list[dict] | None = None) -> dict:
+             baselines: list[dict] | None = None, learned: list[dict] | None = None,
+             trials: list[dict] | None = None) -> dict:
     """The whole dossier content (what the JSON file holds).
 
     Args:
@@ -71,7 +74,10 @@ def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: 
         warnings: notes from choosing and re-training the finalists.
         seed: seeds every bootstrap.
         baselines: reference predictors scored on the same splits
-            (:func:`searcher.report._references.score_references`).
+            (:func:`searcher.report._references.score_references`, and learned references'
+            rows from :func:`searcher.report._references.learned_row`).
+        learned: the learned references' re-run records (kept with their seeds).
+        trials: completed trials' cost points (:func:`searcher.report._front.time_trials`).
     """
     summed = [summarise_finalist(f, confidence=settings["confidence"], seed=seed)
               for f in finalists]
@@ -81,6 +87,8 @@ def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: 
     pick, duel = decide(summed, seed=seed)
     judge_against_baselines(pick, summed, baselines)
     control = next((f for f in summed if f["role"] == "control"), None)
+    references = [summarise_finalist(f, confidence=settings["confidence"], seed=seed)
+                  for f in (learned or [])]
     content = {
         "format": FORMAT,
         "study": study,
@@ -94,8 +102,13 @@ def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: 
             [f["metrics"]["error"]["mean"] for f in summed]).to_dict(),
         "pick": pick,
         "baselines": baselines,
+        "references": references,
+        "error_definition": ERROR_DEFINITION,
         "control": ({"label": control["label"], "origin": control["origin"],
-                     "config": control["config"]} if control else None),
+                     "config": control["config"], "params": control["cost"].get("params"),
+                     "augment": control["config"]["model"].get("augment", "none")}
+                    if control else None),
+        "cost_front": cost_front(summed + references, list(trials or [])),
         "warnings": list(warnings or []),
         "provenance": provenance,
         "files": files,

@@ -75,9 +75,13 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
     """
     from searcher.analysis import analyze, read_trials
     from searcher.errors import UserError, ensure_folder
-    from searcher.report._content import assemble
+    from searcher.report._content import assemble, summarise_finalist
     from searcher.report._export import export_choice
-    from searcher.report._finalists import choose_finalists
+    from searcher.report._finalists import (choose_finalists, fair_control,
+                                            tensor_basis_reference)
+    from searcher.report._front import time_trials
+    from searcher.report._pick import decide
+    from searcher.report._references import learned_row, score_references
     from searcher.report._provenance import now_utc, provenance
     from searcher.report._finalist_measure import retrain
     from searcher.report._tracking import DossierTracker
@@ -105,8 +109,9 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
     seed_list = [int(fixed["training"]["seed"]) + i for i in range(settings["seeds"])]
     settings["seed_list"] = seed_list
     settings["device"] = str(pick_device({"device": "auto"}))
-    records, keep, data_hash = [], {}, ""
-    for cand in candidates:
+    keep, data = {}, {}
+
+    def run(cand) -> dict:
         fin = {"label": cand.label, "role": cand.role, "origin": cand.origin,
                "trial": cand.trial, "search_value": cand.search_value,
                "config": public_config(cand.config), "seeds": []}
@@ -117,7 +122,7 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
             fin["equivariant"] = bool(getattr(model, "equivariant", True))
             rec["mlflow_run_id"] = tracker.record(cand.label, cand.config, rec)
             fin["seeds"].append(rec)
-            data_hash = dataset.hash
+            data["dataset"] = dataset
             best = keep.get(cand.label)
             if math.isfinite(rec["best_value"]) and (best is None
                                                       or rec["best_value"] < best[0]):
@@ -129,19 +134,31 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
             if progress:
                 progress(f"{cand.label} seed {seed}: {rec['status']}, test error "
                          f"{rec['error']:.4g}, {rec['cpu_seconds']:.1f} CPU-s")
-        records.append(fin)
-    from searcher.report._references import score_references
+        return fin
 
-    baselines = score_references(dataset) if records else []
+    records = [run(c) for c in candidates]
+    # The control and the learned reference are built on the pick, so it is decided first.
+    summed = [summarise_finalist(f, confidence=settings["confidence"]) for f in records]
+    pick = next(c for c in candidates if c.label == decide(summed)[0]["label"])
+    dataset = data["dataset"]
+    params = int(next(f for f in records if f["label"] == pick.label)["cost"]["params"])
+    control = fair_control(pick, params, dataset.fields, dataset.target.name, None,
+                           list(fixed["task"]["split"]["stress"]))
+    tensor_basis = tensor_basis_reference(pick, dataset.fields)
+    candidates += [control] + ([tensor_basis] if tensor_basis else [])
+    records.append(run(control))
+    learned = [run(tensor_basis)] if tensor_basis else []
+    baselines = score_references(dataset) + [learned_row(f) for f in learned]
+    trials = time_trials(read_trials(store), dataset)
     files = {**FILES, "plots": plot_files()}
     summary = fixed["study"]
     content = assemble(
         study={"name": study.name, "summary": summary["summary"], "team": summary["team"],
                "path": str(study.path), "hash": study.hash},
         settings=settings, finalists=records, files=files, warnings=notes,
-        baselines=baselines,
+        baselines=baselines, learned=learned, trials=trials,
         provenance=provenance(study_path=study.path, study_hash=study.hash,
-                              data_hash=data_hash, started=started,
+                              data_hash=dataset.hash, started=started,
                               device=settings["device"]))
     label = content["pick"]["label"]
     chosen = next(c for c in candidates if c.label == label)

@@ -9,9 +9,20 @@ import math
 import time
 import warnings
 
-__all__ = ["headline_error", "inference_ms_per_1k_nodes", "measure", "retrain"]
+__all__ = ["ERROR_DEFINITION", "headline_error", "inference_ms_per_1k_nodes", "measure",
+           "retrain"]
 
 TIMING_REPEATS = 3
+# What the dossier's "test error" and the search's "loss" are, and how they relate.
+ERROR_DEFINITION = (
+    "Test error: for each irrep block of the target (one copy of one irrep, e.g. the five "
+    "2e components of a traceless tensor), the relative L2 error ‖pred − true‖ / ‖true‖ "
+    "over the test nodes, then the mean over the blocks; a block whose true values are near "
+    "zero is reported as an RMS and left out of the mean.  Search loss and val loss: the "
+    "normalised MSE, i.e. the squared error of every target component divided by its "
+    "block's training scale² (the block's RMS norm over the training nodes), averaged over "
+    "components.  For a one-block target whose test values have the training RMS, "
+    "normalised MSE ≈ (relative L2)² (derived).")
 
 
 def headline_error(metrics: dict) -> float:

@@ -108,12 +108,44 @@ def curves(content: dict) -> bytes:
     return _png(fig)
 
 
+def front(content: dict) -> bytes:
+    """Error against multiply-adds and against measured time; front points filled."""
+    points = content.get("cost_front") or []
+    fig = Figure(figsize=(8.4, 3.6))
+    for k, (axis, name) in enumerate((("madds", "multiply-adds per node"),
+                                      ("ms_per_1000_nodes", "ms per 1,000 nodes"))):
+        ax = fig.add_subplot(1, 2, k + 1)
+        for group, colour, mark in (("search", "#9aa9b8", "o"), ("dossier", COLOURS[0], "s")):
+            pts = [p for p in points if p["group"] == group and _finite(p[axis])
+                   and _finite(p["error"]) and p[axis] > 0 and p["error"] > 0]
+            for on in (False, True):
+                sel = [p for p in pts if p["pareto"] == on]
+                ax.scatter([p[axis] for p in sel], [p["error"] for p in sel], marker=mark,
+                           s=36, edgecolors=colour, facecolors=colour if on else "none",
+                           label=f"{group}{' front' if on else ''}" if sel else None)
+            for p in pts:
+                if group == "dossier":
+                    ax.annotate(p["label"], (p[axis], p["error"]), textcoords="offset points",
+                                xytext=(4, 3), fontsize=8)
+        if ax.collections:
+            ax.set_xscale("log")
+            ax.set_yscale("log")
+        ax.set_xlabel(name)
+        ax.set_ylabel("error (search loss / test error)")
+        ax.grid(alpha=0.3)
+        if k == 0:
+            ax.legend(fontsize=7)
+    fig.suptitle("Accuracy against cost (filled: on the front of its group)")
+    return _png(fig)
+
+
 # name -> (caption, drawing function); the order is the order in the dossier.
 PLOTS = {
     "seed-spread": ("Test error per seed", seed_spread),
     "curves": ("Validation loss while re-training", curves),
     "stress": ("Error ratios on the stress sets", stress_ratios),
     "transfer": ("Search-time score against dossier score", cheap_vs_full),
+    "front": ("Accuracy against cost", front),
 }
 
 

@@ -5,6 +5,8 @@ A learned closure is only worth carrying forward if it beats what costs nothing:
 * ``zero``: predicts 0 in the normalised target space (0 for every non-scalar block, the
   training mean for ``0e`` blocks), the error scale every relative error is read against;
 * ``training mean``: the per-component mean of the target over the training nodes;
+* learned references (:func:`learned_row`): the tensor-basis network, re-trained over the
+  same seeds as the finalists by the same trainer;
 * ``eddy viscosity``: for the demo's anisotropy target, the linear (Boussinesq) closure
   b = −C_μ Ŝ with C_μ = 0.09 (common practice) computed from the ``scaled_strain`` input,
   which carries Ŝ = (k/ε) S with the demo's own time scale (``searcher.data._closure``).
@@ -17,7 +19,7 @@ from __future__ import annotations
 
 import torch
 
-__all__ = ["C_MU", "reference_modules", "score_references", "skill_scores"]
+__all__ = ["C_MU", "learned_row", "reference_modules", "score_references", "skill_scores"]
 
 C_MU = 0.09
 
@@ -74,3 +76,22 @@ def skill_scores(error: float, baselines: list[dict]) -> dict:
     """``{baseline: 1 − error / baseline error}``: 1 is perfect, 0 no better, < 0 worse."""
     return {b["name"]: (1.0 - error / b["test_error"]) if b["test_error"] > 0 else float("nan")
             for b in baselines}
+
+
+def learned_row(fin: dict) -> dict:
+    """A learned reference's re-runs (a record like a finalist's) as one baseline row: the
+    mean over its seeds of the test error and of each stress set's error."""
+    import math
+
+    def mean(values):
+        ok = [v for v in values if math.isfinite(v)]
+        return float(sum(ok) / len(ok)) if ok else math.nan
+
+    seeds = fin["seeds"]
+    names = sorted({n for s in seeds for n in s["stress"]})
+    return {"name": "tensor-basis network" if fin["config"]["model"]["family"] == "tensor_basis"
+            else fin["label"], "kind": "learned", "label": fin["label"],
+            "test_error": mean([s["error"] for s in seeds]),
+            "stress": {n: mean([s["stress"].get(n, {}).get("error", math.nan) for s in seeds])
+                       for n in names},
+            "seeds": len(seeds), "origin": fin["origin"]}

@@ -21,7 +21,8 @@ SECTION_TITLES = {
     "contenders": "The contenders",
     "seeds": "Seed by seed",
     "head-to-head": "Head to head",
-    "references": "Against what needs no training",
+    "references": "Against references",
+    "front": "Accuracy against cost",
     "stress": "Off the training distribution",
     "symmetry-cost": "Symmetry, size and speed",
     "transfer": "Cheap scores against full training",
@@ -61,9 +62,12 @@ def _contenders(c: dict) -> list:
              fmt(f.get("search_value")), _iv(f["metrics"]["error"]),
              _iv(f["metrics"]["best_value"]), fmt(f["cost"].get("params"))]
             for f in c["finalists"]]
+    ctl = c.get("control") or {}
     return [("text", f"{c['settings']['seeds']} seed(s) each, {c['settings']['epochs']} "
                      "epochs on the full training set. Intervals: "
                      f"{c['settings']['confidence']:.0%} bootstrap over seeds."),
+            ("text", c.get("error_definition", "")),
+            ("text", f"The control {ctl['label']}: {ctl['origin']}." if ctl else ""),
             ("table", ["label", "role", "from", "family", "search loss",
                        "test error", "val loss", "params"], rows)]
 
@@ -157,6 +161,9 @@ def _references(c: dict) -> list:
     base = c.get("baselines") or []
     if not base:
         return [("text", "No reference predictor applies to this data.")]
+    learned = [(f"{r['label']}: {r['origin']}; test error "
+                f"{_iv(r['metrics']['error'])} over {r['metrics']['error']['n']} seed(s).")
+               for r in c.get("references") or []]
     fins = c["finalists"]
     rows = [[b["name"], b["kind"], fmt(b["test_error"])]
             + [fmt((f.get("skill") or {}).get(b["name"])) for f in fins] for b in base]
@@ -165,12 +172,30 @@ def _references(c: dict) -> list:
                "The choice does NOT beat every reference predictor; it is not recommended."
                if beats is False else "")
     return [("text", "Test error (the dossier's error: mean relative L2 over the target's "
-                     "irrep blocks) of predictors that need no training, and each finalist's "
+                     "irrep blocks) of reference predictors: those that need no training "
+                     "(kind constant, closure, field) and learned ones re-trained over the "
+                     "same seeds (kind learned, mean over seeds); and each finalist's "
                      "skill score 1 − error / reference error (> 0: better than the "
                      "reference)."),
             ("table", ["reference", "kind", "test error"] + [f"skill {f['label']}"
                                                              for f in fins], rows),
-            ("text", verdict)]
+            ("list", learned), ("text", verdict)]
+
+
+def _front(c: dict) -> list:
+    points = c.get("cost_front") or []
+    rows = [[str(p.get("label", f"trial {p.get('trial')}")), p["group"], fmt(p["error"]),
+             fmt(p["ms_per_1000_nodes"]), fmt(p["madds"]), fmt(p["pareto"])]
+            for p in points if p["pareto"] or p["group"] == "dossier"]
+    return [("text", "Error against inference cost. Dossier points: mean test error of each "
+                     "re-trained candidate; search points: each completed trial's search "
+                     "loss, its architecture timed here on the test graphs. A point is on "
+                     "the front when no point of its group is at least as good in error, "
+                     "time and multiply-adds and better in one. The table lists every "
+                     "dossier point and the search points on the front."),
+            ("table", ["point", "group", "error", "ms per 1,000 nodes",
+                       "multiply-adds per node", "on the front"], rows),
+            ("plot", "front")]
 
 
 def _files(c: dict) -> list:
@@ -181,7 +206,7 @@ def _files(c: dict) -> list:
 
 BUILDERS = {"choice": _choice, "before-use": lambda c: [("list", c["cautions"])],
             "contenders": _contenders, "seeds": _seeds, "head-to-head": _head_to_head,
-            "references": _references,
+            "references": _references, "front": _front,
             "stress": _stress, "symmetry-cost": _symmetry_cost, "transfer": _transfer,
             "settings": _settings, "origin": _origin, "files": _files}
 

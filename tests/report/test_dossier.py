@@ -49,9 +49,54 @@ def test_baselines_skill_and_verdicts_are_consistent(dossier):
     # two seeds in the test dossier: below the 5 a verdict needs
     assert duel is None or (duel["n"] < 5 and duel["conclusion"] == "undecided")
     assert content["fidelity_transfer"]["too_thin"]
-    first = next(f for f in content["finalists"] if f["label"] == "F1")
+    picked = next(f for f in content["finalists"] if f["label"] == content["pick"]["label"])
     assert content["control"]["config"]["model"]["node_inputs"] == \
-        first["config"]["model"]["node_inputs"]
+        picked["config"]["model"]["node_inputs"]
+
+
+def test_the_control_is_matched_to_the_pick_and_trained_on_random_frames(dossier):
+    _, content = dossier
+    picked = next(f for f in content["finalists"] if f["label"] == content["pick"]["label"])
+    control = next(f for f in content["finalists"] if f["role"] == "control")
+    mine, theirs = control["config"]["model"], picked["config"]["model"]
+    assert mine["family"] == "coord_mlp" and mine["augment"] == "rotate_reflect"  # "reflected" is tested
+    for key in ("node_inputs", "layers", "aggregate", "activation"):
+        assert mine[key] == theirs[key]
+    assert control["config"]["training"] == picked["config"]["training"]
+    # Parameter counts as near as the width allows: one width step changes the count by
+    # more than the remaining gap (derived from the bisection in matched_width).
+    assert abs(control["cost"]["params"] - picked["cost"]["params"]) <= \
+        0.5 * picked["cost"]["params"]
+    assert content["control"]["params"] == control["cost"]["params"]
+
+
+def test_tensor_basis_reference_is_retrained_and_scored(dossier):
+    _, content = dossier
+    (ref,) = content["references"]
+    assert ref["config"]["model"]["family"] == "tensor_basis"
+    assert ref["config"]["model"]["node_inputs"] == ["scaled_strain", "scaled_vorticity"]
+    assert [s["seed"] for s in ref["seeds"]] == [0, 1]
+    row = next(b for b in content["baselines"] if b["kind"] == "learned")
+    errors = [s["error"] for s in ref["seeds"]]
+    assert abs(row["test_error"] - sum(errors) / len(errors)) < 1e-12
+    assert ref["equivariance_error"] < 1e-9        # the gate's float64 bound
+    assert all(row["name"] in f["skill"] for f in content["finalists"])
+
+
+def test_cost_front_flags_exactly_the_undominated_points(dossier):
+    _, content = dossier
+    front = content["cost_front"]
+    labels = {p.get("label") for p in front if p["group"] == "dossier"}
+    assert labels == {f["label"] for f in content["finalists"]} | {"T"}
+    assert any(p["group"] == "search" for p in front)
+    axes = ("error", "ms_per_1000_nodes", "madds")
+    for group in ("dossier", "search"):
+        pts = [p for p in front if p["group"] == group]
+        assert any(p["pareto"] for p in pts)
+        for p in pts:   # brute force, the definition of Pareto dominance
+            dominated = any(all(q[k] <= p[k] for k in axes) and any(q[k] < p[k] for k in axes)
+                            for q in pts if q is not p)
+            assert p["pareto"] is (not dominated)
 
 
 def test_every_written_file_exists(dossier):
@@ -89,9 +134,10 @@ def test_reruns_are_child_runs_of_the_study(dossier):
                                 filter_string="tags.`searcher.role` = 'study'")[0]
     reruns = client.search_runs([exp.experiment_id],
                                 filter_string=f"tags.`searcher.role` = '{RERUN_ROLE}'")
-    expected = sum(len(f["seeds"]) for f in content["finalists"])
+    expected = sum(len(f["seeds"]) for f in content["finalists"] + content["references"])
     assert len(reruns) == expected
     assert {r.data.tags["mlflow.parentRunId"] for r in reruns} == {parent.info.run_id}
-    ids = {s["mlflow_run_id"] for f in content["finalists"] for s in f["seeds"]}
+    ids = {s["mlflow_run_id"] for f in content["finalists"] + content["references"]
+           for s in f["seeds"]}
     assert ids == {r.info.run_id for r in reruns}
     assert all("test_error" in r.data.metrics for r in reruns)

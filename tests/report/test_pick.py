@@ -20,7 +20,43 @@ def _record(number, family, value, lr, outcome="completed", study=None):
                        best_value=value, params={}, config=cfg)
 
 
-def test_finalists_from_good_group_and_a_fixed_control(study_file):
+def test_fair_control_keeps_the_picks_task_and_matches_its_size(study_file):
+    from searcher.models import build_model
+    from searcher.report._finalists import fair_control, tensor_basis_reference
+    from searcher.testing import make_fields
+
+    study = load_study(study_file)
+    fields = make_fields()
+    pick = choose_finalists(study, [_record(0, "steerable", 0.1, 0.01, study=study)], None, 1)[0][0]
+    pick.config["model"]["node_inputs"] = ["scaled_strain", "scaled_vorticity"]
+    target = build_model(pick.config["model"], fields, "anisotropy")
+    params = sum(p.numel() for p in target.parameters())
+    control = fair_control(pick, params, fields, "anisotropy", None, ["rotated"])
+    model = control.config["model"]
+    assert control.role == "control" and control.trial is None
+    assert model["family"] == "coord_mlp" and model["augment"] == "rotate"  # no "reflected" set
+    assert model["node_inputs"] == ["scaled_strain", "scaled_vorticity"]
+    assert model["layers"] == pick.config["model"]["layers"]
+
+    def count(width):
+        cfg = {**model, "width": width}
+        return sum(p.numel() for p in build_model(cfg, fields, "anisotropy").parameters())
+
+    # Nearest by enumeration of the neighbouring widths (the count grows with the width).
+    got = count(model["width"])
+    assert all(abs(got - params) <= abs(count(w) - params)
+               for w in (model["width"] - 1, model["width"] + 1) if w >= 1)
+    assert "against" in control.origin and f"{got:,}" in control.origin
+    assert fair_control(pick, params, fields, "anisotropy", None,
+                        ["reflected"]).config["model"]["augment"] == "rotate_reflect"
+    ref = tensor_basis_reference(pick, fields)
+    assert ref.config["model"]["family"] == "tensor_basis" and ref.role == "reference"
+    vec = make_fields({"velocity": ("vector", "input", "node"),
+                       "anisotropy": ("traceless_symmetric_tensor", "target", "node")})
+    assert tensor_basis_reference(pick, vec) is None
+
+
+def test_finalists_from_the_good_group(study_file):
     study = load_study(study_file)
     records = [_record(0, "steerable", 0.3, 0.003, study=study),
                _record(1, "steerable", 0.1, 0.01, study=study),
@@ -29,16 +65,9 @@ def test_finalists_from_good_group_and_a_fixed_control(study_file):
     good = {"good_group": {"label": "good", "trials": [0, 2]}}
     cands, notes = choose_finalists(study, records, good, 3)
     # Good group only, ordered by best value; trial 1 (same config as 2) is not in it.
-    assert [c.trial for c in cands if c.role == "finalist"] == [2, 0]
-    control = cands[-1]
-    assert control.role == "control" and control.trial is None
-    assert control.config["model"]["family"] == "coord_mlp"
-    # the fair control keeps the first finalist's inputs and depth (issue: a fair control)
-    first = next(c for c in cands if c.label == "F1")
-    assert control.config["model"]["node_inputs"] == first.config["model"]["node_inputs"]
-    assert control.config["model"]["layers"] == first.config["model"]["layers"]
+    assert [c.trial for c in cands] == [2, 0] and {c.role for c in cands} == {"finalist"}
     cands, notes = choose_finalists(study, records, None, 1)
-    assert [c.trial for c in cands] == [1, None] and any("No good group" in n for n in notes)
+    assert [c.trial for c in cands] == [1] and any("No good group" in n for n in notes)
     with pytest.raises(UserError):
         choose_finalists(study, records[3:], None, 2)
 
