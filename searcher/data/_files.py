@@ -35,6 +35,7 @@ from searcher.data._demo import Sample
 from searcher.data._graphs import RESERVED_NAMES
 from searcher.data._kinds import FIELD_KINDS, Field, cartesian_matrix, to_cartesian, to_irreps
 from searcher.errors import UserError, ensure_folder
+from searcher.spec import FIELD_ROLES
 
 __all__ = ["SUFFIXES", "data_cases", "data_files", "declared_fields", "read_samples", "write_npz"]
 
@@ -152,15 +153,22 @@ def declared_fields(task_cfg: dict) -> dict[str, Field]:
                        f" got {name!r}", key)
         if kind not in FIELD_KINDS:
             raise _err(where, f"kind must be one of {', '.join(FIELD_KINDS)}; got {kind!r}", key)
-        if role not in ("input", "target") or level not in ("node", "graph"):
-            raise _err(where, "role must be input|target and level node|graph; got "
+        if role not in FIELD_ROLES or level not in ("node", "graph"):
+            raise _err(where, f"role must be {'|'.join(FIELD_ROLES)} and level node|graph; got "
                        f"role={role!r}, level={level!r}", key)
         if spec.get("at", "points") not in ("points", "cells"):
             raise _err(where, f"at must be points or cells; got {spec.get('at')!r}", key)
-        fields[name] = Field(name, kind, FIELD_KINDS[kind], role, level)
+        fields[name] = Field(name, kind, FIELD_KINDS[kind], role, level,
+                             str(spec.get("of", "")) if role == "baseline" else "")
     targets = [f.name for f in fields.values() if f.role == "target"]
     if len(targets) != 1:
         raise _err(where, f"exactly one field must have role target; got {targets}", origin)
+    for f in fields.values():
+        aim = fields[targets[0]]
+        if f.role == "baseline" and (f.of != aim.name or (f.kind, f.level) != (aim.kind, aim.level)):
+            raise _err(where, f"a baseline field needs of: {aim.name} and its kind {aim.kind} "
+                       f"and level {aim.level}; got of={f.of!r}, kind={f.kind!r}, "
+                       f"level={f.level!r}", f"{origin}.{f.name}")
     return fields
 
 
@@ -250,7 +258,8 @@ def write_npz(out_dir, samples: list[Sample], fields: dict[str, Field]) -> list[
         UserError: ``out_dir`` cannot be made or written.
     """
     out = ensure_folder(out_dir, "out_dir")
-    header = json.dumps({f.name: {"kind": f.kind, "role": f.role, "level": f.level}
+    header = json.dumps({f.name: {"kind": f.kind, "role": f.role, "level": f.level,
+                                  **({"of": f.of} if f.of else {})}
                          for f in fields.values()})
     paths = []
     for s in samples:

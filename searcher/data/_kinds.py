@@ -46,8 +46,9 @@ class Field:
         name: array name in files and attribute name on each ``Data``.
         kind: a key of :data:`FIELD_KINDS`.
         irreps: the kind's e3nn irreps string.
-        role: ``"input"`` or ``"target"``.
+        role: ``"input"``, ``"target"`` or ``"baseline"`` (a reference prediction of a target).
         level: ``"node"`` (one value per point) or ``"graph"`` (one value per graph).
+        of: for a baseline, the name of the target it predicts; "" otherwise.
     """
 
     name: str
@@ -55,6 +56,7 @@ class Field:
     irreps: str
     role: str
     level: str
+    of: str = ""
 
     def to_dict(self) -> dict:
         return asdict(self)

@@ -7,6 +7,9 @@ A learned closure is only worth carrying forward if it beats what costs nothing:
 * ``training mean``: the per-component mean of the target over the training nodes;
 * learned references (:func:`learned_row`): the tensor-basis network, re-trained over the
   same seeds as the finalists by the same trainer;
+* every field declared ``role: baseline`` with ``of: <target>`` (kind ``field``), for
+  example the RANS model's own anisotropy written by the solver: read from the files and
+  normalised like the target;
 * ``eddy viscosity``: for the demo's anisotropy target, the linear (Boussinesq) closure
   b = −C_μ Ŝ with C_μ = 0.09 (common practice) computed from the ``scaled_strain`` input,
   which carries Ŝ = (k/ε) S with the demo's own time scale (``searcher.data._closure``).
@@ -38,6 +41,10 @@ class _Reference(torch.nn.Module):
 
     def forward(self, data) -> torch.Tensor:
         like = getattr(data, self.name)
+        if self.kind.startswith("field "):   # a reference prediction read from the files
+            field = self.kind.split(" ", 1)[1]
+            physical = self.normaliser.invert(field, getattr(data, field))
+            return self.normaliser.apply(self.name, physical).to(like.dtype)
         if self.kind == "zero":
             return torch.zeros_like(like)
         if self.kind == "training mean":
@@ -53,6 +60,9 @@ def reference_modules(dataset) -> dict:
     field = dataset.fields.get("scaled_strain")
     if field is not None and field.kind == dataset.target.kind:
         out["eddy viscosity"] = ("closure", _Reference(dataset, "eddy viscosity"))
+    for f in dataset.fields.values():
+        if f.role == "baseline" and f.of == dataset.target.name:
+            out[f.name] = ("field", _Reference(dataset, f"field {f.name}"))
     return out
 
 

@@ -9,10 +9,10 @@ from searcher.spec._checks import flatten
 from searcher.spec._dims import Dimension
 from searcher.spec._irreps import (DEMO_FIELDS, FIELD_KINDS, format_irreps, hidden_irreps,
                                    parse_irreps, reachable_irreps, task_fields)
-from searcher.spec._rules import STRESS_SETS
+from searcher.spec._rules import FIELD_ROLES, STRESS_SETS
 from searcher.spec._schema import json_schema
 from searcher.spec._study import Study, config_hash, defaults, load_study
 
 __all__ = ["load_study", "Study", "Dimension", "config_hash", "defaults", "FIELD_KINDS",
            "DEMO_FIELDS", "task_fields", "hidden_irreps", "parse_irreps", "format_irreps",
-           "reachable_irreps", "json_schema", "flatten", "STRESS_SETS"]
+           "reachable_irreps", "json_schema", "flatten", "FIELD_ROLES", "STRESS_SETS"]

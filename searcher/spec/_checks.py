@@ -120,7 +120,7 @@ def _check_fields(fields: dict, path: tuple, sink: Sink):
             continue
         for key, rule in Fields.keys.items():
             if key not in entry:
-                if key not in ("level", "at"):
+                if key not in ("level", "at", "of"):
                     sink.add(f"field {name!r} needs {key!r} ({rule.problem(None)})", path + (name,))
             elif rule.problem(entry[key]):
                 sink.add(f"got {entry[key]!r}; allowed: {rule.problem(entry[key])}",
@@ -128,7 +128,8 @@ def _check_fields(fields: dict, path: tuple, sink: Sink):
         for key in entry:
             if key not in Fields.keys:
                 sink.add(f"unknown key {key!r}{did_you_mean(key, Fields.keys)}; allowed: "
-                         "kind, role, level, at", path + (name, key), key=True)
+                         "kind, role, level, at, of", path + (name, key), key=True)
+    _check_baselines(fields, path, sink)
     # Node positions are either the mesh points or the cell centroids, never both at once.
     places = [(name, e.get("at", "points")) for name, e in fields.items() if isinstance(e, dict)]
     first = places[0] if places else None
@@ -138,6 +139,31 @@ def _check_fields(fields: dict, path: tuple, sink: Sink):
                      "every field of a study lives at the same place (points or cells)",
                      path + (name, "at"))
             break
+
+
+def _check_baselines(fields: dict, path: tuple, sink: Sink):
+    """A ``role: baseline`` field names the target with ``of`` and has its kind and level."""
+    entries = {n: e for n, e in fields.items() if isinstance(e, dict)}
+    targets = [n for n, e in entries.items() if e.get("role") == "target"]
+    for name, e in entries.items():
+        if e.get("role") != "baseline":
+            if "of" in e:
+                sink.add(f"field {name!r} has 'of' but role {e.get('role')!r}; rule: only a "
+                         "field with role baseline names the field it predicts",
+                         path + (name, "of"))
+            continue
+        of = e.get("of")
+        if of not in targets:
+            sink.add(f"baseline field {name!r} needs 'of' naming the target field; got {of!r}; "
+                     f"allowed: {', '.join(targets) or 'no target declared'}",
+                     path + (name, "of"))
+            continue
+        for key in ("kind", "level"):
+            mine, theirs = e.get(key, "node"), entries[of].get(key, "node")
+            if mine != theirs:
+                sink.add(f"baseline field {name!r} is a {mine!r} {key} but its target {of!r} "
+                         f"is {theirs!r}; rule: a baseline has its target's kind and level",
+                         path + (name, key))
 
 
 def _possible(dotted: str, dims: dict, fixed: dict) -> list | None:

@@ -14,7 +14,7 @@ from searcher.options import AUGMENT_MODES, REGISTERED
 from searcher.spec._irreps import FIELD_KINDS, parse_irreps
 
 __all__ = ["Rule", "Whole", "Real", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
-           "Fields", "RULES", "DEMO_FAMILIES", "STRESS_SETS", "EDGE_INVARIANTS",
+           "Fields", "FIELD_ROLES", "RULES", "DEMO_FAMILIES", "STRESS_SETS", "EDGE_INVARIANTS",
            "VARYING_SECTIONS", "NAME_PATTERN", "RENAMED_KEYS", "RENAMED_VALUES",
            "MEANING_NOTES"]
 
@@ -194,8 +194,12 @@ class Fractions(Rule):
                 "minItems": 3, "maxItems": 3}
 
 
-_FIELD_KEYS = {"kind": OneOf(tuple(FIELD_KINDS)), "role": OneOf(("input", "target")),
-               "level": OneOf(("node", "graph")), "at": OneOf(("points", "cells"))}
+# ``baseline``: a reference prediction of the target read from the files (``of: <target>``),
+# for example the solver's own closure; it is scored in the dossier and never a model input.
+FIELD_ROLES = ("input", "target", "baseline")
+_FIELD_KEYS = {"kind": OneOf(tuple(FIELD_KINDS)), "role": OneOf(FIELD_ROLES),
+               "level": OneOf(("node", "graph")), "at": OneOf(("points", "cells")),
+               "of": Text(r"[A-Za-z_][A-Za-z0-9_]*", "the name of the target field")}
 
 
 @dataclass(frozen=True)

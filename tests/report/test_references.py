@@ -46,3 +46,67 @@ def test_eddy_viscosity_matches_the_closure_formula(tmp_path):
     assert C_MU == 0.09
     rows = score_references(ds)
     assert [r["name"] for r in rows] == ["zero", "training mean", "eddy viscosity"]
+
+
+def _files_with_a_baseline(root, factor):
+    """Six NPZ cases whose baseline field is ``factor`` times the target, written with numpy."""
+    import json
+
+    header = {"velocity": {"kind": "vector", "role": "input", "level": "node"},
+              "b": {"kind": "traceless_symmetric_tensor", "role": "target", "level": "node"},
+              "b_rans": {"kind": "traceless_symmetric_tensor", "role": "baseline",
+                         "level": "node", "of": "b"}}
+    root.mkdir()
+    for k in range(6):
+        rng = np.random.default_rng(k)
+        s = rng.normal(size=(10, 3, 3))
+        s = s + np.swapaxes(s, 1, 2)
+        s -= np.trace(s, axis1=1, axis2=2)[:, None, None] * np.eye(3) / 3
+        np.savez(root / f"case{k}.npz", pos=rng.uniform(size=(10, 3)),
+                 velocity=rng.normal(size=(10, 3)), b=s, b_rans=factor * s,
+                 header=np.array(json.dumps(header)))
+    return root
+
+
+def test_a_baseline_field_is_scored_as_a_reference(tmp_path):
+    import json
+
+    from searcher.spec import defaults
+
+    task = json.loads(json.dumps(defaults()["task"]))
+    task.update(source=str(_files_with_a_baseline(tmp_path / "d", 0.5)), fields={})
+    task["graph"].update(rule="neighbours", neighbours=3)
+    task["split"].update(stress=["rotated", "reflected"], hold_out=[])
+    ds = build_dataset(task)
+    assert ds.fields["b_rans"].role == "baseline" and ds.fields["b_rans"].of == "b"
+    rows = {r["name"]: r for r in score_references(ds)}
+    # derived: a prediction 0.5 b has relative L2 error |0.5 b − b| / |b| = 0.5 exactly, on
+    # every split and on rotated/reflected copies (both fields turn together).
+    assert rows["b_rans"]["kind"] == "field"
+    assert abs(rows["b_rans"]["test_error"] - 0.5) < 1e-6
+    assert all(abs(v - 0.5) < 1e-6 for v in rows["b_rans"]["stress"].values())
+    assert "eddy viscosity" not in rows
+
+
+def test_a_baseline_field_must_name_the_target(tmp_path):
+    import yaml
+
+    from searcher.cli import main
+
+    root = _files_with_a_baseline(tmp_path / "d", 1.0)
+    doc = {"task": {"source": str(root), "fields": {
+        "velocity": {"kind": "vector", "role": "input"},
+        "b": {"kind": "traceless_symmetric_tensor", "role": "target"},
+        "b_rans": {"kind": "vector", "role": "baseline", "of": "velocity"}}}}
+    path = tmp_path / "s.yaml"
+    path.write_text(yaml.safe_dump(doc, sort_keys=False))
+    import io
+    from contextlib import redirect_stderr
+
+    err = io.StringIO()
+    with redirect_stderr(err):
+        code = main(["check", str(path)])
+    assert code == 2
+    text = err.getvalue()
+    assert "task.fields.b_rans.of" in text and "allowed: b" in text and "s.yaml" in text
+    assert "Traceback" not in text
