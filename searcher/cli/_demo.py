@@ -70,7 +70,8 @@ def _handle(args: argparse.Namespace) -> int:
     tracking = summary.tracking if summary.tracking != "off" else None
     res = analyze(study, open_store(study), out / "analysis", mlflow_uri=tracking)
     print(res.get("summary") or res.get("message") or "analysis done")
-    # Two finalists and the control, 5 seeds of 10 epochs each: the demo's time budget.
+    # Two finalists, the control and the tensor-basis network, 6 seeds of 10 epochs each:
+    # the demo's time budget.
     make_dossier(study, quick=args.quick, finalists=None if args.quick else 2,
                  epochs=None if args.quick else 10, progress=print)
     reports = [f"analysis: {out / 'analysis'}", f"dossier:  {out / 'dossier'}"]

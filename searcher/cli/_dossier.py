@@ -17,13 +17,13 @@ def register(sub) -> None:
         epilog="example:\n  searcher dossier studies/demo.yaml --quick")
     p.add_argument("study", help="the study file (YAML)")
     p.add_argument("--finalists", type=int, metavar="K", help="finalists to re-train (default 3)")
-    p.add_argument("--seeds", type=int, metavar="S", help="seeds per finalist (default 3)")
+    p.add_argument("--seeds", type=int, metavar="S", help="seeds per finalist (default 6)")
     p.add_argument("--epochs", type=int, metavar="E",
                    help="epochs per re-run (default twice the study's)")
     p.add_argument("--out", metavar="DIR", help="dossier folder (default <output>/dossier)")
     p.add_argument("--storage", metavar="URL", help="Optuna storage overriding the study's")
     p.add_argument("--quick", action="store_true",
-                   help="2 finalists + control, 2 seeds, the study's epochs")
+                   help="2 finalists, the control and the references, 2 seeds, the study's epochs")
     p.add_argument("--json", action="store_true", help="print the dossier content as JSON")
     p.set_defaults(handler=run)
 
