@@ -106,3 +106,26 @@ def test_status_json_keys(write_study):
     assert status["n_trials"] == 1 and status["states"]["COMPLETE"] == 1
     assert status["best"]["number"] == 0 and math.isfinite(status["best"]["value"])
     assert status["best"]["config"]["model"]["family"] == "gated"
+
+
+def test_gate_failure_is_rejected_and_never_trained(write_study, monkeypatch):
+    # Every build of this sweep is a broken block (a constant on the l = 2 output that a
+    # rotation does not move); the search must record it as rejected and train nothing.
+    import searcher.models as models
+    from searcher.testing import BrokenBias
+
+    real = models.build_model
+    monkeypatch.setattr(models, "build_model", lambda *a, **kw: BrokenBias(real(*a, **kw)))
+    models.forget_verdicts()  # a verdict kept from another test must not answer for this one
+    try:
+        path = write_study({"search": {"budget": {"trials": 2}}}, name="gate-fails")
+        study, summary = _run(path)
+    finally:
+        models.forget_verdicts()
+    trials = open_store(study).get_trials()
+    assert len(trials) == 2 and summary.counts["rejected"] == 2
+    for t in trials:
+        assert t.state == optuna.trial.TrialState.PRUNED and outcome_of(t) == "rejected"
+        assert t.user_attrs["reason"].startswith("equivariance gate: equivariance error")
+        assert t.constraints["gate"] == 1.0 and not t.user_attrs["gate"]["passed"]
+        assert not t.intermediate_values and t.user_attrs["epochs"] == 0
