@@ -124,3 +124,18 @@ def test_verdict_states_the_ratio_inside_its_interval(tmp_path, order):
               re.search(r"interval ([0-9.e+]+|∞)–([0-9.e+]+|∞)×", text).groups())
     assert about and lo <= float(about.group(1)) <= hi and lo > 1, text
     assert ("more" if order == "rich first" else "less") == about.group(2)
+
+
+def test_check_comparable_refuses_warns_and_passes(tmp_path):
+    from searcher.analysis import check_comparable
+
+    a, _ = _study(tmp_path, "alpha")
+    same, _ = _study(tmp_path, "beta", seed=2)
+    other, _ = _study(tmp_path, "other", extra="task:\n  split:\n    seed: 3\n", seed=1)
+    assert check_comparable([a, same], [{"h1"}, {"h1"}], force=False) == []
+    with pytest.raises(UserError) as err:
+        check_comparable([a, other], [set(), set()], force=False)
+    assert [p.path for p in err.value.problems][0] == "task.split.seed"
+    assert "--force" in str(err.value)
+    warned = check_comparable([a, same], [{"h1"}, {"h2"}], force=True)
+    assert len(warned) == 1 and warned[0].startswith("warning:") and "data_hash" in warned[0]
