@@ -47,9 +47,10 @@ def test_self_comparison_shows_no_clear_difference(tmp_path):
     res = compare([a, a], out_dir=tmp_path / "cmp")
     assert res["verdicts"][0]["text"].startswith("no clear difference")
     lo, _, hi = res["verdicts"][0]["ratio_interval"]
-    assert lo < 1 < hi
-    assert res["target"] == pytest.approx(10 * res["studies"][0]["best"])   # best of all × 10
+    assert lo < 1 < hi  # derived: a study against itself has cost ratio 1
+    assert res["target"] == pytest.approx(10 * res["studies"][0]["best"])   # compare()'s default target, 10 × best (README, compare)
     s = res["studies"][0]
+    # derived: a Wilson score interval (Wilson 1927) always contains its observed proportion
     assert s["hit_interval"][0] <= s["hit_rate"] <= s["hit_interval"][1]
     assert all(v == [] for v in res["space_diffs"][0]["diff"].values())
     for name in ("expected-best-trials.png", "expected-best-compute.png", "hit-rates.png",
