@@ -113,21 +113,27 @@ def _copy_tree(root: Path, dest: Path) -> None:
             shutil.copy2(src, dest / rel)
 
 
-def _pytest(tree: Path, tests) -> tuple[bool, str]:
+def _pytest(tree: Path, tests) -> tuple[int, str]:
     env = {**os.environ, "PYTHONPATH": str(tree), "OMP_NUM_THREADS": "1",
            "MKL_NUM_THREADS": "1", "PYTHONDONTWRITEBYTECODE": "1"}
     proc = subprocess.run([sys.executable, "-m", "pytest", "-x", "-q", "-p", "no:cacheprovider",
                            *tests], cwd=tree, env=env, capture_output=True, text=True)
     lines = (proc.stdout + proc.stderr).strip().splitlines()
-    return proc.returncode == 0, (lines[-1] if lines else "")
+    return proc.returncode, (lines[-1] if lines else "")
+
+
+# pytest exit codes: 0 all passed (the mutant survived), 1 a test failed (caught); anything
+# else (collection error, usage error, no test ran) is an "error": the tests never judged it.
+_RESULTS = {0: "survived", 1: "caught"}
 
 
 def run_mutants(root: Path, mutants=MUTANTS, echo=print) -> tuple[int, list[dict]]:
     """Apply each mutant to a scratch copy of ``root`` and run its tests.
 
     Returns:
-        ``(exit_code, rows)``: 0 when every mutant was caught; 1 when one survived or the
-        unmutated tests fail; 2 when a mutant's original text is not found exactly once.
+        ``(exit_code, rows)``: 0 when every mutant was caught; 1 when one survived (or its
+        tests could not run) or the unmutated tests fail; 2 when a mutant's original text
+        is not found exactly once.
     """
     root = Path(root).resolve()
     problems = check_targets(root, mutants)
@@ -141,10 +147,10 @@ def run_mutants(root: Path, mutants=MUTANTS, echo=print) -> tuple[int, list[dict
         _copy_tree(root, tree)
         every = sorted({t for m in mutants for t in m.tests})
         start = time.monotonic()
-        ok, last = _pytest(tree, every)
-        echo(f"unmutated: {len(every)} test selections {'pass' if ok else 'FAIL'} "
+        code, last = _pytest(tree, every)
+        echo(f"unmutated: {len(every)} test selections {'pass' if code == 0 else 'FAIL'} "
              f"({time.monotonic() - start:.0f} s) {last}")
-        if not ok:
+        if code != 0:
             return 1, []
         for m in mutants:
             file = tree / m.path
@@ -152,15 +158,15 @@ def run_mutants(root: Path, mutants=MUTANTS, echo=print) -> tuple[int, list[dict
             file.write_text(text.replace(m.original, m.replacement), encoding="utf-8")
             start = time.monotonic()
             try:
-                passed, last = _pytest(tree, m.tests)
+                code, last = _pytest(tree, m.tests)
             finally:
                 file.write_text(text, encoding="utf-8")
             row = {"mutant": m.name, "promise": m.promise, "file": m.path,
-                   "tests": list(m.tests), "result": "survived" if passed else "caught",
+                   "tests": list(m.tests), "result": _RESULTS.get(code, "error"),
                    "seconds": round(time.monotonic() - start, 1), "last_line": last}
             rows.append(row)
             echo(f"{m.name}: {row['result']} ({row['seconds']:.0f} s) {last}")
-    return (1 if any(r["result"] == "survived" for r in rows) else 0), rows
+    return (1 if any(r["result"] != "caught" for r in rows) else 0), rows
 
 
 def format_table(rows: list[dict]) -> str:
@@ -194,9 +200,9 @@ def main(argv=None) -> int:
     if rows:
         print()
         print(format_table(rows))
-    survivors = [r["mutant"] for r in rows if r["result"] == "survived"]
+    survivors = [f"{r['mutant']} ({r['result']})" for r in rows if r["result"] != "caught"]
     if survivors:
-        print(f"\nmutants: {len(survivors)} survived: {', '.join(survivors)}", file=sys.stderr)
+        print(f"\nmutants: {len(survivors)} not caught: {', '.join(survivors)}", file=sys.stderr)
     return code
 
 

@@ -26,3 +26,21 @@ def test_a_missing_or_repeated_target_is_reported(tmp_path):
     problems = check_targets(tmp_path, (twice, gone, missing))
     assert len(problems) == 3
     assert "2 times" in problems[0] and "0 times" in problems[1] and "does not exist" in problems[2]
+
+
+def test_a_caught_and_a_surviving_mutant_in_a_tiny_tree(tmp_path):
+    import subprocess
+
+    from searcher.testing._mutants import Mutant, run_mutants
+
+    (tmp_path / "mod.py").write_text("VALUE = 1\n")
+    (tmp_path / "test_mod.py").write_text("from mod import VALUE\n\n\ndef test_value():\n"
+                                          "    assert VALUE == 1\n")
+    (tmp_path / "test_other.py").write_text("def test_nothing_about_mod():\n    assert True\n")
+    subprocess.run(["git", "init", "-q"], cwd=tmp_path, check=True)
+    caught = Mutant("caught", "p", "mod.py", "VALUE = 1", "VALUE = 2", ("test_mod.py",))
+    missed = Mutant("missed", "p", "mod.py", "VALUE = 1", "VALUE = 2", ("test_other.py",))
+    code, rows = run_mutants(tmp_path, (caught, missed), echo=lambda line: None)
+    assert code == 1 and [r["result"] for r in rows] == ["caught", "survived"]
+    assert (tmp_path / "mod.py").read_text() == "VALUE = 1\n"  # the real tree is untouched
+    assert run_mutants(tmp_path, (caught,), echo=lambda line: None)[0] == 0
