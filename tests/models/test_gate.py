@@ -148,7 +148,7 @@ def test_gating_the_built_model_matches_building_one():
     result = run_gate(cfg, DEMO, "anisotropy", seed=1, built=built)
     assert result.passed and result.equivariance_error < 1e-9
     broken_cfg = model_config({**TINY, "family": "gated", "width": 11})
-    broken = _VectorBias(build_model(broken_cfg, DEMO, "anisotropy"))
+    broken = BrokenBias(build_model(broken_cfg, DEMO, "anisotropy"))
     verdict = run_gate(broken_cfg, DEMO, "anisotropy", seed=1, built=broken)
     assert not verdict.passed and verdict.equivariance_error > 1e-3
 
