@@ -16,7 +16,8 @@ from searcher.testing._replay import (ReplayResult, compare_pruners, crossing_cu
 from searcher.testing._studies import tiny_fit_config, tiny_study_doc
 
 __all__ = ["BrokenBias", "assert_gate", "make_fields", "model_config", "random_graph", "seeded",
-           "tiny_fit_config", "tiny_study_doc", "check_pruner_replay", "add_trial", "planted_curves",
+           "tiny_fit_config", "tiny_study_doc", "check_pruner_replay", "add_trial",
+           "planted_curves",
            "planted_study", "ReplayResult", "compare_pruners",
            "crossing_curves", "format_replay_table", "good_mask", "measure_call_cost", "replay",
            "replay_order", "replay_pruners"]

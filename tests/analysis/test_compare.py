@@ -48,7 +48,8 @@ def test_self_comparison_shows_no_clear_difference(tmp_path):
     assert res["verdicts"][0]["text"].startswith("no clear difference")
     lo, _, hi = res["verdicts"][0]["ratio_interval"]
     assert lo < 1 < hi  # derived: a study against itself has cost ratio 1
-    assert res["target"] == pytest.approx(10 * res["studies"][0]["best"])   # compare()'s default target, 10 × best (README, compare)
+    # compare()'s default target: 10 × the best loss of all studies (README, compare)
+    assert res["target"] == pytest.approx(10 * res["studies"][0]["best"])
     s = res["studies"][0]
     # derived: a Wilson score interval (Wilson 1927) always contains its observed proportion
     assert s["hit_interval"][0] <= s["hit_rate"] <= s["hit_interval"][1]

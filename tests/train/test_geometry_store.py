@@ -64,8 +64,9 @@ def test_stored_arrays_are_the_models_geometry(setup):
         sh = o3.spherical_harmonics(model.geometry.sh.irreps_out, g.edge_vec,
                                     normalize=True, normalization="component")
         torch.testing.assert_close(g.edge_sh, sh)
-        torch.testing.assert_close(g.edge_rbf, _bessel_reference(g.edge_vec, cfg["model"]["radial"]),
-                                   atol=1e-6, rtol=1e-5)  # float32 rounding of the stored arrays
+        # tolerance: float32 rounding of the stored arrays (common practice)
+        want = _bessel_reference(g.edge_vec, cfg["model"]["radial"])
+        torch.testing.assert_close(g.edge_rbf, want, atol=1e-6, rtol=1e-5)
         assert g.edge_geometry == model.geometry.key
 
 
