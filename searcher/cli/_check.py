@@ -78,7 +78,7 @@ def _check_source(study) -> None:
         raise UserError([study.locate(
             f"data source {source!r} does not exist (looked for {Path(source).resolve()}; "
             "paths are relative to the folder searcher runs in); allowed: \"demo\", a "
-            ".npz/.vtu/.vtp/.vtk file or a folder of them", "task.source")])
+            ".npz/.vtu/.vtk file or a folder of them", "task.source")])
 
 
 def _cell(value, spec: str) -> str:

@@ -33,7 +33,7 @@ def _inspect_help() -> str:
 file data:
   .npz   one graph per file: pos [N, 3], one Cartesian array per field, optional
          edge_index [2, E] and a JSON header (see `searcher data export --help`)
-  .vtu/.vtp/.vtk (read with meshio): point_data arrays are node fields, field_data arrays
+  .vtu/.vtk (read with meshio): point_data arrays are node fields, field_data arrays
          graph fields; task.fields must declare their kinds; with task.mesh_edges the edges
          join every pair of vertices that share a cell
   a folder is one dataset: its data files in name order, one graph each
@@ -56,7 +56,7 @@ def register(subparsers) -> None:
                          epilog=_inspect_help(),
                          formatter_class=argparse.RawDescriptionHelpFormatter)
     ins.add_argument("source", help="a study file (.yaml: its data), 'demo' (the built-in "
-                     "defaults), a data file (.npz/.vtu/.vtp/.vtk) or a folder")
+                     "defaults), a data file (.npz/.vtu/.vtk) or a folder")
     ins.add_argument("--study", help="study YAML whose task section (graph rule, fields, "
                      "splits) applies")
     ins.add_argument("--json", action="store_true", help="print one JSON object")

@@ -12,7 +12,8 @@ NPZ schema (one graph per file; ``searcher data export`` writes it, the reader a
 * ``header`` — a JSON string: field name → ``{"kind", "role", "level"}``.  A study's
   ``task.fields`` takes precedence; without one the header declares the fields.
 
-VTK (``.vtu``, ``.vtp``, ``.vtk``, read with meshio): ``point_data`` arrays are node fields,
+VTK (``.vtu``, ``.vtk``, read with meshio; meshio 5.3 has no ``.vtp`` reader, so PolyData
+files are refused by name): ``point_data`` arrays are node fields,
 ``field_data`` arrays graph fields; ``task.fields`` must declare their kinds; with
 ``task.mesh_edges`` the edges join every pair of vertices that share a cell.  When the
 fields are declared ``at: cells`` (finite-volume output), the nodes are the cell centroids,
@@ -39,7 +40,7 @@ from searcher.spec import FIELD_ROLES
 
 __all__ = ["SUFFIXES", "data_cases", "data_files", "declared_fields", "read_samples", "write_npz"]
 
-SUFFIXES = (".npz", ".vtu", ".vtp", ".vtk")
+SUFFIXES = (".npz", ".vtu", ".vtk")  # meshio 5.3 reads no .vtp (VTK PolyData XML)
 _SYM_TOL = 1e-6
 
 

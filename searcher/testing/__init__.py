@@ -6,6 +6,7 @@ synthetic studies in the store format.
 ``assert_gate`` wraps e3nn's ``assert_equivariant`` around the same rebuilt-graph function
 the gate uses; ``random_graph`` is the models' probe-graph builder.
 """
+from searcher.testing._broken import BrokenBias
 from searcher.testing._helpers import assert_gate, make_fields, model_config, random_graph, seeded
 from searcher.testing._planted import add_trial, planted_curves, planted_study
 from searcher.testing._pruner_check import check_pruner_replay
@@ -14,8 +15,9 @@ from searcher.testing._replay import (ReplayResult, compare_pruners, crossing_cu
                                       replay_order, replay_pruners)
 from searcher.testing._studies import tiny_fit_config, tiny_study_doc
 
-__all__ = ["assert_gate", "make_fields", "model_config", "random_graph", "seeded",
-           "tiny_fit_config", "tiny_study_doc", "check_pruner_replay", "add_trial", "planted_curves",
+__all__ = ["BrokenBias", "assert_gate", "make_fields", "model_config", "random_graph", "seeded",
+           "tiny_fit_config", "tiny_study_doc", "check_pruner_replay", "add_trial",
+           "planted_curves",
            "planted_study", "ReplayResult", "compare_pruners",
            "crossing_curves", "format_replay_table", "good_mask", "measure_call_cost", "replay",
            "replay_order", "replay_pruners"]

@@ -7,8 +7,7 @@ import numpy as np
 import optuna
 import pytest
 
-from searcher.analysis import (choose_for_audit, classify_reruns, prune_audit, read_trials,
-                               wilson_interval)
+from searcher.analysis import choose_for_audit, classify_reruns, prune_audit, read_trials
 from searcher.testing._planted import add_trial
 
 
@@ -30,7 +29,7 @@ def test_stratified_by_pruning_epoch():
     assert [r.number for r in chosen] == sorted(r.number for r in chosen)
     # Every stratum gets one while n allows; never more than there are pruned trials.
     assert Counter(r.pruned_at for r in choose_for_audit(records, 3)) == {2: 1, 6: 1, 12: 1}
-    assert len(choose_for_audit(records, 100)) == 20
+    assert len(choose_for_audit(records, 100)) == 20  # derived: 12 + 6 + 2 pruned trials
     assert choose_for_audit(records, 10) == chosen   # deterministic with the seed
 
 
@@ -38,14 +37,18 @@ def test_classification_with_wilson_interval():
     curves = [np.array([1.0, 0.01]), np.array([1.0, 0.5]), np.array([0.02, 0.004]),
               np.array([np.nan, np.inf])]
     res = classify_reruns(curves, threshold=0.01)
+    # derived: curves 1 and 3 reach 0.01 or below; the non-finite one counts as not joined
     assert res["joined"] == 2 and res["reruns"] == 4 and res["fraction"] == 0.5
-    assert res["interval"] == pytest.approx(list(wilson_interval(2, 4)))
+    # Wilson (1927) score interval, 2 of 4 at 95 % (z = 1.959964), by hand: centre 0.5,
+    # half-width z/(1+z²/4)·sqrt(1/16 + z²/64) = 0.349961
+    assert res["interval"] == pytest.approx([0.150039, 0.849961], abs=1e-6)
     assert res["joined_each"] == [True, False, True, False]
 
 
 def test_audit_needs_a_good_group():
     store = _store([2, 6])
     res = prune_audit(None, store, {"good_group": None}, 2)
+    # derived: _store([2, 6]) holds pruned trials 0 and 1, then one completed
     assert res["status"] == "nothing_to_audit" and res["chosen"] == [0, 1]
     assert "no distinct good group" in res["message"]
 
@@ -79,7 +82,11 @@ def test_audit_reruns_through_the_search_layer(tmp_path):
         add_trial(store, [5.0], {"model.hidden.lmax": 1}, "pruned", config=study.fixed())
     res = prune_audit(study, store, {"good_group": {"label": "converges deep",
                                                     "threshold": 4.0}}, 1)
+    # derived: --audit 1 asks for one re-run of the two pruned trials
     assert res["status"] == "done" and res["reruns"] == 1 and len(res["chosen"]) == 1
     assert np.isfinite(res["best"][0])
     assert res["joined_each"] == [res["best"][0] <= 4.0]
-    assert res["interval"] == pytest.approx(list(wilson_interval(res["joined"], 1)))
+    # Wilson (1927) at n = 1, by hand: 0 of 1 -> [0, z²/(1+z²)] = [0, 0.793451];
+    # 1 of 1 -> [1/(1+z²), 1] = [0.206549, 1] (z = 1.959964)
+    assert res["interval"] == pytest.approx([0.0, 0.793451] if res["joined"] == 0
+                                            else [0.206549, 1.0], abs=1e-6)

@@ -47,9 +47,11 @@ def test_self_comparison_shows_no_clear_difference(tmp_path):
     res = compare([a, a], out_dir=tmp_path / "cmp")
     assert res["verdicts"][0]["text"].startswith("no clear difference")
     lo, _, hi = res["verdicts"][0]["ratio_interval"]
-    assert lo < 1 < hi
-    assert res["target"] == pytest.approx(10 * res["studies"][0]["best"])   # best of all × 10
+    assert lo < 1 < hi  # derived: a study against itself has cost ratio 1
+    # compare()'s default target: 10 × the best loss of all studies (README, compare)
+    assert res["target"] == pytest.approx(10 * res["studies"][0]["best"])
     s = res["studies"][0]
+    # derived: a Wilson score interval (Wilson 1927) always contains its observed proportion
     assert s["hit_interval"][0] <= s["hit_rate"] <= s["hit_interval"][1]
     assert all(v == [] for v in res["space_diffs"][0]["diff"].values())
     for name in ("expected-best-trials.png", "expected-best-compute.png", "hit-rates.png",
@@ -124,3 +126,18 @@ def test_verdict_states_the_ratio_inside_its_interval(tmp_path, order):
               re.search(r"interval ([0-9.e+]+|∞)–([0-9.e+]+|∞)×", text).groups())
     assert about and lo <= float(about.group(1)) <= hi and lo > 1, text
     assert ("more" if order == "rich first" else "less") == about.group(2)
+
+
+def test_check_comparable_refuses_warns_and_passes(tmp_path):
+    from searcher.analysis import check_comparable
+
+    a, _ = _study(tmp_path, "alpha")
+    same, _ = _study(tmp_path, "beta", seed=2)
+    other, _ = _study(tmp_path, "other", extra="task:\n  split:\n    seed: 3\n", seed=1)
+    assert check_comparable([a, same], [{"h1"}, {"h1"}], force=False) == []
+    with pytest.raises(UserError) as err:
+        check_comparable([a, other], [set(), set()], force=False)
+    assert [p.path for p in err.value.problems][0] == "task.split.seed"
+    assert "--force" in str(err.value)
+    warned = check_comparable([a, same], [{"h1"}, {"h2"}], force=True)
+    assert len(warned) == 1 and warned[0].startswith("warning:") and "data_hash" in warned[0]

@@ -1,9 +1,11 @@
 """Enrichment tests, rules and importance for the good group."""
 from __future__ import annotations
 
+from math import comb
+
 import numpy as np
 import pytest
-from scipy.stats import false_discovery_control, fisher_exact, hypergeom, mannwhitneyu
+from scipy.stats import false_discovery_control, fisher_exact, hypergeom
 
 from searcher.analysis import enrichment, importances, read_trials, trait_rules
 from searcher.testing._planted import planted_study
@@ -46,11 +48,27 @@ def test_planted_trait_found(planted):
     assert lmax2["q"] < 0.05 and lmax2["in_group"] == 1.0
     assert lmax2["overall"] == pytest.approx(
         np.mean([r.params["model.hidden.lmax"] == 2 for r in records]))
-    # The same table through scipy directly.
+    # Second implementation: the one-sided Fisher p is the hypergeometric upper tail
+    # P(X >= a) with the margins fixed (Fisher 1935; Agresti, Categorical Data Analysis,
+    # 3.5.1), summed here in exact integers with math.comb.
     has = np.array([r.params["model.hidden.lmax"] == 2 for r in records])
-    table = [[(has & good).sum(), (~has & good).sum()], [(has & ~good).sum(), (~has & ~good).sum()]]
-    assert lmax2["p"] == pytest.approx(fisher_exact(table, alternative="greater").pvalue)
+    hits, with_value, group, total = int((has & good).sum()), int(has.sum()), int(good.sum()), \
+        len(records)
+    tail = sum(comb(with_value, k) * comb(total - with_value, group - k)
+               for k in range(hits, min(with_value, group) + 1))
+    assert lmax2["p"] == pytest.approx(tail / comb(total, group), rel=1e-9)
     assert all(0 <= r["q"] <= 1 for r in rows)
+
+
+def _rank_sum_counts(total: int, size: int) -> dict[int, int]:
+    """Number of ``size``-subsets of the ranks 1..total with each rank sum."""
+    table = [dict() for _ in range(size + 1)]
+    table[0][0] = 1
+    for rank in range(1, total + 1):
+        for k in range(min(rank, size), 0, -1):
+            for s, c in table[k - 1].items():
+                table[k][s + rank] = table[k].get(s + rank, 0) + c
+    return table[size]
 
 
 def test_numeric_effect_size_is_u_over_nm(planted):
@@ -58,9 +76,23 @@ def test_numeric_effect_size_is_u_over_nm(planted):
     rows = enrichment(records, good)
     lr = next(r for r in rows if r["parameter"] == "training.learning_rate")
     x = np.array([r.params["training.learning_rate"] for r in records])
-    u = mannwhitneyu(x[good], x[~good], alternative="two-sided")
-    assert lr["p"] == pytest.approx(u.pvalue)
-    assert lr["effect"] == pytest.approx(u.statistic / (good.sum() * (~good).sum()))
+    inside, outside = x[good], x[~good]
+    # U counts the pairs (inside, outside) with the inside value larger, a tie one half (Mann
+    # & Whitney 1947), so U / (n m) is counted here pair by pair.
+    pairs = inside[:, None] - outside[None, :]
+    u = float((pairs > 0).sum() + 0.5 * (pairs == 0).sum())
+    assert lr["effect"] == pytest.approx(u / (inside.size * outside.size), rel=1e-12)
+    # Exact two-sided p (no ties; 6 in the group): 2 min(P(U <= u), P(U >= u)) under the null
+    # that every 6-subset of the 120 ranks is equally likely (Mann & Whitney 1947), counted by
+    # a subset-sum recursion over rank sums in exact integers.
+    assert len(set(x)) == x.size
+    n, m = inside.size, outside.size
+    ways = _rank_sum_counts(n + m, n)
+    u_counts = {s - n * (n + 1) // 2: c for s, c in ways.items()}
+    everything = comb(n + m, n)
+    below = sum(c for k, c in u_counts.items() if k <= u) / everything
+    above = sum(c for k, c in u_counts.items() if k >= u) / everything
+    assert lr["p"] == pytest.approx(min(1.0, 2 * min(below, above)), rel=1e-9)
     lo, hi = (float(v) for v in lr["value"].split(".."))
     assert lo == pytest.approx(x[good].min(), rel=1e-5) and hi == pytest.approx(x[good].max(),
                                                                             rel=1e-5)

@@ -49,6 +49,7 @@ def test_loop_ratio_rows(demo):
     dataset, base = demo
     rows = loop_vs_reference(dataset, base, sizes=(1,), families=("gated",), epochs=1,
                              repeats=1)
+    # derived: the one family and size asked for
     assert [(r["family"], r["lmax"]) for r in rows] == [("gated", 1)]
     assert set(rows[0]) == {"family", "lmax", "epochs", "ours_s", "reference_s", "ratio"}
 
@@ -59,6 +60,7 @@ def test_in_process_figures_and_table(tmp_path):
     figs = record["figures"]
     assert set(figs) == {"loop_vs_reference", "flop_utilisation", "analysis_10k"}
     flop = figs["flop_utilisation"][0]
+    # derived: a share of the machine's peak is positive for any model that does work
     assert flop["madds_per_step"] > 0 and 0 < flop["fraction"] and 0 < flop["fraction_e3nn"]
     table = format_table(record)
     for name in figs:
@@ -71,10 +73,10 @@ def test_sweep_figures(tmp_path):
     record = run_bench(quick=True, cache=tmp_path, plan=TINY_PLAN, echo=lambda line: None,
                        only=("worker_scaling", "overhead"))
     scale, over = record["figures"]["worker_scaling"], record["figures"]["overhead"]
-    assert scale["per_hour_1"] > 0 and scale["per_hour_2"] > 0
+    assert scale["per_hour_1"] > 0 and scale["per_hour_2"] > 0  # derived: trials did finish
     # 2 configurations, each run once cold and once warm.
-    assert over["trials"] == 4 and 0 <= over["fraction"] <= 1
-    assert 0 <= over["fraction_warm"] <= 1 and 0 <= over["fraction_cold"] <= 1
+    assert over["trials"] == 4 and 0 <= over["fraction"] <= 1  # derived: 2 x (cold + warm); a share
+    assert 0 <= over["fraction_warm"] <= 1 and 0 <= over["fraction_cold"] <= 1  # shares (derived)
     # The trainer's logged epoch seconds are part of the trial's wall time, never more.
     assert 0 < over["training_s"] <= over["trial_s"]
     table = format_table(record)

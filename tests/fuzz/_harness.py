@@ -1,24 +1,17 @@
-"""Run ``searcher.cli.main`` in-process on hostile input: exit code, output, a hang guard."""
+"""Run ``searcher.cli.main`` in-process on hostile input: exit code and output.
+
+No clock guards the run: the work is bounded by counts instead (hypothesis ``max_examples``
+and the size of each generated file), so a hang shows as a test that does not finish.
+"""
 from __future__ import annotations
 
 import contextlib
 import io
-import signal
 import tempfile
 from pathlib import Path
 from typing import Callable
 
-__all__ = ["run_cli", "HANG_SECONDS", "assert_read_or_located"]
-
-HANG_SECONDS = 20
-
-
-class Hang(Exception):
-    """The command did not return within HANG_SECONDS."""
-
-
-def _alarm(signum, frame):
-    raise Hang(f"no answer within {HANG_SECONDS} s")
+__all__ = ["run_cli", "assert_read_or_located"]
 
 
 def run_cli(argv: list[str]) -> tuple[int, str]:
@@ -27,17 +20,11 @@ def run_cli(argv: list[str]) -> tuple[int, str]:
     from searcher.cli import main
 
     out, err = io.StringIO(), io.StringIO()
-    old = signal.signal(signal.SIGALRM, _alarm)
-    signal.alarm(HANG_SECONDS)
-    try:
-        with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-            try:
-                code = main(argv)
-            except SystemExit as stop:  # argparse
-                code = stop.code if isinstance(stop.code, int) else 2
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, old)
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        try:
+            code = main(argv)
+        except SystemExit as stop:  # argparse
+            code = stop.code if isinstance(stop.code, int) else 2
     return int(code or 0), out.getvalue() + err.getvalue()
 
 

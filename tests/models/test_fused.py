@@ -87,7 +87,7 @@ def test_fused_matches_e3nn_outputs_and_gradients(name):
     assert out.shape == ref.shape
     torch.testing.assert_close(out, ref, rtol=0, atol=1e-12)
     for g, rg in zip(grads, ref_grads):
-        torch.testing.assert_close(g, rg, rtol=0, atol=1e-11)
+        torch.testing.assert_close(g, rg, rtol=0, atol=1e-12)
 
 
 @settings(max_examples=12, deadline=None)
@@ -107,7 +107,7 @@ def test_fused_matches_e3nn_on_random_structures(muls, l2max, outs):
     (ref, ref_grads), (got, grads) = _compare(tp, batch=3)
     torch.testing.assert_close(got, ref, rtol=0, atol=1e-12)
     for g, rg in zip(grads, ref_grads):
-        torch.testing.assert_close(g, rg, rtol=0, atol=1e-11)
+        torch.testing.assert_close(g, rg, rtol=0, atol=1e-12)
 
 
 @pytest.mark.parametrize("irreps_in, irreps_out", [
@@ -131,7 +131,7 @@ def test_fused_linear_matches_e3nn(irreps_in, irreps_out):
     (ref, ref_grads), (got, grads) = results
     torch.testing.assert_close(got, ref, rtol=0, atol=1e-12)
     for g, rg in zip(grads, ref_grads):
-        torch.testing.assert_close(g, rg, rtol=0, atol=1e-11)
+        torch.testing.assert_close(g, rg, rtol=0, atol=1e-12)
 
 
 def test_linears_with_biases_keep_e3nn_code():

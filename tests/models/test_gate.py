@@ -5,8 +5,8 @@ import pytest
 import torch
 from e3nn import o3
 
-from searcher.models import build_model, gate_model, run_gate
-from searcher.testing import assert_gate, make_fields, model_config
+from searcher.models import build_model, forget_verdicts, gate_model, run_gate
+from searcher.testing import BrokenBias, assert_gate, make_fields, model_config
 
 DEMO = make_fields()  # the demo's fields: velocity, pressure, pressure_gradient → anisotropy
 NODE = make_fields({"velocity": ("vector", "input", "node"),
@@ -93,29 +93,13 @@ def test_baselines_are_measured_not_rejected(family):
     assert result.to_dict()["reason"].startswith("baseline")
 
 
-class _VectorBias(torch.nn.Module):
-    """A deliberately broken block: a constant added to the 1o part of the output."""
-
-    def __init__(self, model):
-        super().__init__()
-        self.model, self.irreps_in, self.irreps_out = model, model.irreps_in, model.irreps_out
-        self.bias = torch.nn.Parameter(torch.zeros(model.irreps_out.dim))
-        with torch.no_grad():
-            for (mul, ir), s in zip(model.irreps_out, model.irreps_out.slices()):
-                if ir.l > 0:
-                    self.bias[s] = 0.1
-
-    def forward(self, data):
-        return self.model(data) + self.bias
-
-
 def test_broken_block_is_caught():
-    model = _VectorBias(build_model(model_config({**TINY, "family": "gated"}), DEMO,
-                                    "anisotropy"))
+    model = BrokenBias(build_model(model_config({**TINY, "family": "gated"}), DEMO,
+                                   "anisotropy"))
     result = gate_model(model, DEMO)
     assert not result.passed and result.equivariant
     # Why 1e-3: the 0.1 bias on the l > 0 components does not rotate with the output, so the
-    # error |D(R) b - b| is of order 0.1 for a generic rotation (derived from _VectorBias);
+    # error |D(R) b - b| is of order 0.1 for a generic rotation (derived from BrokenBias);
     # 1e-3 leaves two decades of margin and is still six above the 1e-9 tolerance.
     assert result.equivariance_error > 1e-3 and "exceeds" in result.reason
     with pytest.raises(AssertionError):
@@ -127,11 +111,29 @@ def test_assert_gate_wraps_e3nn():
     assert set(errors) == {(0, False), (0, True), (1, False), (1, True)}
 
 
-def test_gate_is_deterministic():
+def test_coordinate_dependent_bias_fails_the_gate():
+    model = BrokenBias(build_model(model_config({**TINY, "family": "steerable"}), DEMO,
+                                   "anisotropy"), coordinate=True)
+    result = gate_model(model, DEMO, seed=5)
+    # derived: 0.1 * x moves by 0.1 * |R p - p|_x under a rotation and by 0.1 * t_x under a
+    # translation; the probe cloud spans about unit size, so the error is of order 1e-2,
+    # seven decades above the 1e-9 tolerance; 1e-4 leaves two decades of margin.
+    assert not result.passed and result.equivariance_error > 1e-4
+    assert result.second_check_error > 1e-4 and "exceeds" in result.reason
+
+
+@pytest.mark.parametrize("seed", [3, 99])
+def test_gate_is_deterministic(seed):
+    # Measured twice from scratch (the per-architecture verdict cache forgotten in between),
+    # so the second verdict is a second measurement, not the first one read back.
     cfg = model_config({**TINY, "family": "gated"})
-    a = run_gate(cfg, DEMO, "anisotropy", seed=3).to_dict()
-    b = run_gate(cfg, DEMO, "anisotropy", seed=3).to_dict()
-    assert a == b
+    forget_verdicts()
+    a = run_gate(cfg, DEMO, "anisotropy", seed=seed).to_dict()
+    forget_verdicts()
+    b = run_gate(cfg, DEMO, "anisotropy", seed=seed).to_dict()
+    forget_verdicts()
+    assert a == b and a["passed"]
+    assert 0 < a["equivariance_error"] <= 1e-9  # the gate's float64 tolerance (run_gate)
     # symmetric 3x3 = 0e + 2e (REFERENCES.md)
     assert o3.Irreps(NODE["stress"].irreps) == o3.Irreps("0e+2e")
 
@@ -146,7 +148,7 @@ def test_gating_the_built_model_matches_building_one():
     result = run_gate(cfg, DEMO, "anisotropy", seed=1, built=built)
     assert result.passed and result.equivariance_error < 1e-9
     broken_cfg = model_config({**TINY, "family": "gated", "width": 11})
-    broken = _VectorBias(build_model(broken_cfg, DEMO, "anisotropy"))
+    broken = BrokenBias(build_model(broken_cfg, DEMO, "anisotropy"))
     verdict = run_gate(broken_cfg, DEMO, "anisotropy", seed=1, built=broken)
     assert not verdict.passed and verdict.equivariance_error > 1e-3
 

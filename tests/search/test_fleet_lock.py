@@ -19,11 +19,21 @@ def test_second_holder_waits_until_the_first_releases(pg_url):
     first.acquire()
     worker = threading.Thread(target=lambda: (second.acquire(), order.append("second")))
     worker.start()
-    worker.join(timeout=1.0)
-    assert worker.is_alive() and order == []  # still blocked while the first holds it
+    # The second session is seen waiting in pg_locks (granted = false; PostgreSQL manual,
+    # "pg_locks"): asked by the server, not inferred from a clock.
+    watch = engine.connect()
+    waiting = sqlalchemy.text("SELECT count(*) FROM pg_locks WHERE locktype = 'advisory' "
+                              "AND NOT granted AND database = (SELECT oid FROM pg_database "
+                              "WHERE datname = current_database())")
+    for _ in range(6000):  # polls, not a time limit: the loop ends as soon as it waits
+        if watch.execute(waiting).scalar():
+            break
+        threading.Event().wait(0.01)
+    assert watch.execute(waiting).scalar() == 1 and worker.is_alive() and order == []
+    watch.close()
     order.append("first released")
     first.release()
-    worker.join(timeout=30)
+    worker.join()
     assert order == ["first released", "second"]
     second.release()
     other = FleetLock(engine, "another study")  # other studies are not blocked

@@ -25,7 +25,7 @@ def _run(path, **kw):
 def test_sweep_records_every_trial_consistently(write_study, pruner):
     path = write_study({"search": {"pruner": {"kind": pruner}}}, name=f"sweep-{pruner}")
     study, summary = _run(path)
-    assert summary.exit_code == 0 and summary.n_trials == 3
+    assert summary.exit_code == 0 and summary.n_trials == 3  # budget.trials of tiny_study_doc
     trials = open_store(study).get_trials()
     client = MlflowClient(tracking_uri=summary.tracking)
     exp = client.get_experiment_by_name(study.name)
@@ -53,6 +53,7 @@ def test_sweep_records_every_trial_consistently(write_study, pruner):
     # top-k checkpoints: only the best `keep_best` completed trials keep weights
     done = sorted((t.value, t.number) for t in trials if outcome_of(t) == "completed")
     for rank, (_, number) in enumerate(done):
+        # keep_best defaults to 3 (searcher/spec/defaults.yaml, search.keep_best)
         assert checkpoint_path(study.output_dir, number).exists() == (rank < 3)
     if done:
         assert load_weights(checkpoint_path(study.output_dir, done[0][1]))
@@ -71,6 +72,7 @@ def test_median_pruner_cuts_a_slow_learner(write_study):
     _, summary = _run(path)
     trials = open_store(study).get_trials()
     assert [outcome_of(t) for t in trials][:2] == ["completed", "completed"]
+    # derived: warmup 1 means the median rule is first asked after epoch 2 (n_warmup_steps=2)
     assert outcome_of(trials[2]) == "pruned" and trials[2].user_attrs["pruned_at"] >= 2
     assert summary.counts["pruned"] == 1
 
@@ -80,6 +82,7 @@ def test_guard_rejects_and_records_with_constraints(write_study):
                        name="guarded")
     study, summary = _run(path)
     trials = open_store(study).get_trials()
+    # derived: every candidate has more than 10 parameters, so both of the 2 are rejected
     assert len(trials) == 2 and summary.counts["rejected"] == 2
     for t in trials:
         assert t.state == optuna.trial.TrialState.PRUNED
@@ -93,6 +96,7 @@ def test_absurd_learning_rate_is_recorded_as_diverged(write_study):
     study, summary = _run(path)
     (t,) = open_store(study).get_trials()
     assert outcome_of(t) == "diverged" and summary.counts["diverged"] == 1
+    # the outcome table of searcher/outcomes.py: diverged = PRUNED with constraint stable = 1
     assert t.constraints["stable"] == 1.0 and "epoch" in t.user_attrs["reason"]
     status = study_status(study)
     assert status["best"] is None and status["counts"]["diverged"] == 1
@@ -103,6 +107,31 @@ def test_status_json_keys(write_study):
     study, _ = _run(path)
     status = study_status(study)
     assert {"counts", "best", "n_trials", "states", "storage"} <= set(status)
+    # derived: budget 1, pruner none, so the one trial completes and is the best
     assert status["n_trials"] == 1 and status["states"]["COMPLETE"] == 1
     assert status["best"]["number"] == 0 and math.isfinite(status["best"]["value"])
     assert status["best"]["config"]["model"]["family"] == "gated"
+
+
+def test_gate_failure_is_rejected_and_never_trained(write_study, monkeypatch):
+    # Every build of this sweep is a broken block (a constant on the l = 2 output that a
+    # rotation does not move); the search must record it as rejected and train nothing.
+    import searcher.models as models
+    from searcher.testing import BrokenBias
+
+    real = models.build_model
+    monkeypatch.setattr(models, "build_model", lambda *a, **kw: BrokenBias(real(*a, **kw)))
+    models.forget_verdicts()  # a verdict kept from another test must not answer for this one
+    try:
+        path = write_study({"search": {"budget": {"trials": 2}}}, name="gate-fails")
+        study, summary = _run(path)
+    finally:
+        models.forget_verdicts()
+    trials = open_store(study).get_trials()
+    # derived: budget 2, every build broken, so 2 rejected; the gate constraint is 1 (outcomes.py)
+    assert len(trials) == 2 and summary.counts["rejected"] == 2
+    for t in trials:
+        assert t.state == optuna.trial.TrialState.PRUNED and outcome_of(t) == "rejected"
+        assert t.user_attrs["reason"].startswith("equivariance gate: equivariance error")
+        assert t.constraints["gate"] == 1.0 and not t.user_attrs["gate"]["passed"]
+        assert not t.intermediate_values and t.user_attrs["epochs"] == 0

@@ -12,7 +12,7 @@ from searcher.data import build_dataset
 from searcher.models import build_model
 from searcher.testing import tiny_fit_config
 from searcher.train import (BlockErrors, Schedule, evaluate, fidelity_graphs, fit, load_weights,
-                            save_weights, target_blocks)
+                            make_optimiser, save_weights, target_blocks)
 
 
 @pytest.fixture(scope="module")
@@ -139,6 +139,56 @@ def test_cosine_schedule_with_warmup():
     want = [0.5] + [0.5 * (1 + math.cos(math.pi * t / 4)) for t in range(4)]
     assert [sch.start(e) for e in range(1, 6)] == pytest.approx(want)
     assert opt.param_groups[0]["lr"] == pytest.approx(want[-1])
+
+
+def test_constant_schedule_with_warmup():
+    opt = torch.optim.SGD([torch.nn.Parameter(torch.zeros(1))], lr=1.0)
+    sch = Schedule(opt, {"schedule": "constant", "learning_rate": 0.1, "warmup_epochs": 2,
+                         "epochs": 5})
+    # derived from the module's rule: linear warm-up lr e/(w+1) for e <= w, then lr
+    assert [sch.start(e) for e in range(1, 6)] == pytest.approx([0.1 / 3, 0.2 / 3, 0.1, 0.1, 0.1])
+    for e in range(1, 6):
+        sch.end(e, 1.0)  # never a new best after epoch 1: a constant schedule ignores it
+    assert sch.start(6) == pytest.approx(0.1)
+
+
+def test_plateau_schedule_halves_after_patience_and_stops_at_the_floor():
+    opt = torch.optim.SGD([torch.nn.Parameter(torch.zeros(1))], lr=1.0)
+    sch = Schedule(opt, {"schedule": "plateau", "learning_rate": 0.1, "warmup_epochs": 0,
+                         "epochs": 100})
+    # losses 1.0, 0.9 (new bests), then three epochs without a better one: PATIENCE = 3
+    # (common practice), so the rate halves from epoch 6 on (derived: 0.1 / 2).
+    for e, loss in enumerate([1.0, 0.9, 0.95, 0.95], start=1):
+        assert sch.start(e) == pytest.approx(0.1)
+        sch.end(e, loss)
+    assert sch.start(5) == pytest.approx(0.1)
+    sch.end(5, 0.95)
+    assert sch.start(6) == pytest.approx(0.05)
+    sch.end(6, 0.5)  # a new best resets the count, not the rate
+    for e in (7, 8):
+        assert sch.start(e) == pytest.approx(0.05)
+        sch.end(e, 0.6)
+    assert sch.start(9) == pytest.approx(0.05)
+    for e in range(9, 100):
+        sch.end(e, 0.6)
+    # 30 halvings would give 0.1 * 2**-30; the floor FLOOR = 1e-3 of lr stops it at 1e-4
+    assert sch.start(100) == pytest.approx(1e-4)
+
+
+@pytest.mark.parametrize("kind,want", [("adam", 0.9), ("adamw", 0.999)])
+def test_adamw_decays_weights_apart_from_the_gradient(kind, want):
+    # One step from p = 1 with a zero loss gradient, lr 0.1, weight decay 0.01.  AdamW
+    # (Loshchilov & Hutter, ICLR 2019) decays the weight itself: p = 1 - lr * wd = 0.999,
+    # and its Adam step is 0 (zero moments).  Adam adds wd * p to the gradient, whose first
+    # bias-corrected step is lr * g / |g| = lr: p = 0.9 (derived; Kingma & Ba 2015, eps aside).
+    model = torch.nn.Linear(1, 1, bias=False)
+    with torch.no_grad():
+        model.weight.fill_(1.0)
+    opt = make_optimiser(model, {"optimiser": kind, "learning_rate": 0.1, "weight_decay": 0.01})
+    assert type(opt) is {"adam": torch.optim.Adam, "adamw": torch.optim.AdamW}[kind]
+    (0.0 * model.weight.sum()).backward()
+    opt.step()
+    assert float(model.weight.detach()) == pytest.approx(want, abs=1e-6)
 
 
 def test_weights_round_trip(tmp_path):
