@@ -9,7 +9,7 @@ need; this table is what both sides share.
 """
 from __future__ import annotations
 
-__all__ = ["REGISTERED", "declared"]
+__all__ = ["REGISTERED", "DATA_DERIVED", "declared"]
 
 REGISTERED: dict[str, tuple[str, ...]] = {
     "model.family": ("steerable", "gated", "node_mlp", "coord_mlp"),
@@ -19,6 +19,10 @@ REGISTERED: dict[str, tuple[str, ...]] = {
     "search.sampler.kind": ("tpe", "random", "gp", "cmaes", "qmc", "grid"),
     "search.pruner.kind": ("none", "median", "percentile", "halving", "hyperband", "outlook"),
 }
+
+# Keys that may name, instead of a number, a value the data decide: key -> the word.  The
+# spec accepts the word; searcher.models.resolve_cutoff turns it into the number.
+DATA_DERIVED: dict[str, str] = {"model.radial.cutoff": "from_data"}
 
 
 def declared(key: str, name: str) -> str:

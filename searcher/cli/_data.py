@@ -90,12 +90,16 @@ def _task(args) -> dict:
 
 
 def _inspect(args) -> int:
-    from searcher.data import build_dataset
+    from searcher.data import build_dataset, check_cutoff
 
     task = _task(args)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         ds = build_dataset(task)
+        if args.study:   # the study's radial cutoff against the data's edges
+            from searcher.spec import load_study
+
+            check_cutoff(load_study(args.study), ds.graphs)
     report = {"source": args.source, "hash": ds.hash,
               "fields": [f.to_dict() for f in ds.fields.values()], "stats": ds.stats,
               "warnings": sorted({str(w.message) for w in caught if "searcher" in w.filename})}
@@ -111,7 +115,8 @@ def _inspect(args) -> int:
           f"[{g['nodes_min']}, {g['nodes_max']}]  edges/graph {g['edges_mean']:.1f} "
           f"[{g['edges_min']}, {g['edges_max']}]")
     print(f"degree mean {g['degree_mean']:.2f}, max {g['degree_max']}; isolated nodes "
-          f"{g['isolated_nodes']}; edges dropped by cap {s['edges_dropped']}")
+          f"{g['isolated_nodes']}; edges dropped by cap {s['edges_dropped']}; longest edge "
+          f"{g['edge_len_max']:.4g}")
     print("split   " + "  ".join(f"{k} {v}" for k, v in s["split"].items())
           + f"   (by {s.get('split_by', 'sample')})")
     cases = s.get("cases", {})
