@@ -9,7 +9,7 @@ need; this table is what both sides share.
 """
 from __future__ import annotations
 
-__all__ = ["AUGMENT_MODES", "REGISTERED", "declared"]
+__all__ = ["AUGMENT_MODES", "DATA_DERIVED", "REGISTERED", "declared"]
 
 # ``model.augment``: how a non-equivariant baseline's training frames are drawn
 # (``searcher.models._frames``).
@@ -23,6 +23,10 @@ REGISTERED: dict[str, tuple[str, ...]] = {
     "search.sampler.kind": ("tpe", "random", "gp", "cmaes", "qmc", "grid"),
     "search.pruner.kind": ("none", "median", "percentile", "halving", "hyperband", "outlook"),
 }
+
+# Keys that may name, instead of a number, a value the data decide: key -> the word.  The
+# spec accepts the word; searcher.models.resolve_cutoff turns it into the number.
+DATA_DERIVED: dict[str, str] = {"model.radial.cutoff": "from_data"}
 
 
 def declared(key: str, name: str) -> str:

@@ -90,33 +90,50 @@ def _task(args) -> dict:
 
 
 def _inspect(args) -> int:
-    from searcher.data import build_dataset
+    from searcher.data import build_dataset, check_cutoff, describe_fields, survey_dataset
 
     task = _task(args)
+    patched = task["source"] != "demo" and int((task.get("patches") or {}).get("size", 0)) > 0
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        ds = build_dataset(task)
-    report = {"source": args.source, "hash": ds.hash,
-              "fields": [f.to_dict() for f in ds.fields.values()], "stats": ds.stats,
+        if patched:   # large files: summed up one patch at a time, no graph kept
+            digest, stats = survey_dataset(task)
+        else:
+            ds = build_dataset(task)
+            digest, stats = ds.hash, ds.stats
+            if args.study:   # the study's radial cutoff against the data's edges
+                from searcher.spec import load_study
+
+                check_cutoff(load_study(args.study), ds.graphs)
+    fields = describe_fields(task)
+    report = {"source": args.source, "hash": digest,
+              "fields": [f.to_dict() for f in fields.values()], "stats": stats,
               "warnings": sorted({str(w.message) for w in caught if "searcher" in w.filename})}
     if args.json:
         print(json.dumps(report, indent=2))
         return 0
-    print(f"source  {args.source}   data hash {ds.hash[:12]}")
+    print(f"source  {args.source}   data hash {digest[:12]}")
     print(f"{'field':<22}{'kind':<28}{'irreps':<10}{'role':<8}level")
-    for f in ds.fields.values():
+    for f in fields.values():
         print(f"{f.name:<22}{f.kind:<28}{f.irreps:<10}{f.role:<8}{f.level}")
-    s, g = ds.stats, ds.stats["graphs"]
+    s, g = stats, stats["graphs"]
     print(f"samples {s['samples']}  graphs {g['graphs']}  nodes/graph {g['nodes_mean']:.1f} "
           f"[{g['nodes_min']}, {g['nodes_max']}]  edges/graph {g['edges_mean']:.1f} "
           f"[{g['edges_min']}, {g['edges_max']}]")
     print(f"degree mean {g['degree_mean']:.2f}, max {g['degree_max']}; isolated nodes "
-          f"{g['isolated_nodes']}; edges dropped by cap {s['edges_dropped']}")
+          f"{g['isolated_nodes']}; edges dropped by cap {s['edges_dropped']}; longest edge "
+          f"{g['edge_len_max']:.4g}")
     print("split   " + "  ".join(f"{k} {v}" for k, v in s["split"].items())
           + f"   (by {s.get('split_by', 'sample')})")
     cases = s.get("cases", {})
     if cases and s.get("split_by") == "case" or any(v == "unseen_family" for v in cases.values()):
         print("cases   " + "  ".join(f"{c}: {p}" for c, p in cases.items()))
+    if "patches" in s:
+        p = s["patches"]
+        print(f"patches {p['patches']} from {p['files']} file(s), {p['files_cut']} cut; core "
+              f"nodes/patch {p['core_nodes_mean']:.1f} (max {p['core_nodes_max']}), halo "
+              f"{p['halo_nodes_mean']:.1f}; every node core exactly once: "
+              f"{'yes' if p['core_cover_exact'] else 'NO'}")
     print("stress  " + ("  ".join(f"{k} {v}" for k, v in s["stress"].items()) or "none"))
     for line in s["stress_notes"] + report["warnings"]:
         print(f"note    {line}")

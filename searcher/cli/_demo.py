@@ -1,8 +1,11 @@
 """``searcher demo``: the whole job on the embedded analytic-flow demo.
 
 It writes a small study file into the output folder that extends ``studies/demo.yaml``
-(``--quick`` shrinks the budget, data and epochs), runs it with 2 workers and the demo's
-pruner, then the analysis and the dossier, and prints where everything is.
+(``--quick`` shrinks the budget, data and epochs; ``--trials``/``--epochs`` shrink them
+further), runs it with 2 workers and the demo's pruner, then the analysis and the dossier,
+and prints where everything is.  An installed package carries the demo study and its base
+config under ``searcher/examples/`` (copied there by the build, see ``setup.py``); a source
+checkout reads them from ``studies/`` and ``configs/``.
 """
 from __future__ import annotations
 
@@ -27,19 +30,39 @@ QUICK = {"study": {"name": "demo-quick"},
 def _demo_file() -> Path:
     import searcher
 
-    path = Path(searcher.__file__).resolve().parents[1] / "studies" / "demo.yaml"
-    if not path.exists():
-        raise UserError.single(f"the demo study must exist next to the package, but {path} "
-                               f"does not")
-    return path
+    package = Path(searcher.__file__).resolve().parent
+    places = (package / "examples" / "studies" / "demo.yaml",   # an installed package
+              package.parent / "studies" / "demo.yaml")         # a source checkout
+    for path in places:
+        if path.exists():
+            return path
+    raise UserError.single("the demo study must ship with the package (searcher/examples/"
+                           "studies/demo.yaml) or sit in the source tree (studies/demo.yaml), "
+                           f"but neither exists under {package.parent}")
 
 
-def demo_study_text(out: Path, quick: bool) -> str:
+def _shorter(doc: dict, trials: int | None, epochs: int | None) -> None:
+    """``--trials``/``--epochs``: override the budget and the epochs (the pruner's window
+    shrinks with them, as the spec requires max_epochs <= training.epochs)."""
+    if trials is not None:
+        doc.setdefault("search", {}).setdefault("budget", {})["trials"] = trials
+    if epochs is not None:
+        doc.setdefault("training", {})["epochs"] = epochs
+        pruner = doc.setdefault("search", {}).setdefault("pruner", {})
+        pruner["max_epochs"] = epochs
+        pruner["min_epochs"] = min(int(pruner.get("min_epochs", 2)), epochs - 1)
+
+
+def demo_study_text(out: Path, quick: bool, trials: int | None = None,
+                    epochs: int | None = None) -> str:
     """The study file the demo runs: ``studies/demo.yaml`` plus the output folder (and the
-    ``--quick`` overrides)."""
+    ``--quick``, ``--trials`` and ``--epochs`` overrides)."""
+    import copy
+
     doc = {"extends": str(_demo_file())}
     if quick:
-        doc.update(QUICK)
+        doc.update(copy.deepcopy(QUICK))
+    _shorter(doc, trials, epochs)
     doc["output"] = {"folder": str(out)}
     return "# written by `searcher demo`; edit studies/demo.yaml instead\n" + \
         yaml.safe_dump(doc, sort_keys=False)
@@ -54,10 +77,16 @@ def _handle(args: argparse.Namespace) -> int:
     from ._run import where_lines
 
     t0 = time.perf_counter()
+    # the demo's pruner (outlook) needs a window of at least 2 epochs
+    for key, least in (("trials", 1), ("epochs", 2)):
+        value = getattr(args, key)
+        if value is not None and value < least:
+            raise UserError.single(f"must be at least {least}, but got {value}",
+                                   path=f"--{key}")
     out = Path(args.out or ("runs/demo-quick" if args.quick else "runs/demo")).resolve()
     ensure_folder(out, "--out" if args.out else "output folder of the demo")
     path = out / "study.yaml"
-    path.write_text(demo_study_text(out, args.quick))
+    path.write_text(demo_study_text(out, args.quick, args.trials, args.epochs))
     study = load_study(path)
     print(f"demo study: {path} (extends {_demo_file()})")
     print("generating the analytic-flow probe clouds and running the search with 2 workers")
@@ -72,8 +101,9 @@ def _handle(args: argparse.Namespace) -> int:
     print(res.get("summary") or res.get("message") or "analysis done")
     # Two finalists, the control and the tensor-basis network, 6 seeds of 10 epochs each:
     # the demo's time budget.
+    epochs = args.epochs if args.epochs is not None else None if args.quick else 10
     make_dossier(study, quick=args.quick, finalists=None if args.quick else 2,
-                 epochs=None if args.quick else 10, progress=print)
+                 epochs=epochs, progress=print)
     reports = [f"analysis: {out / 'analysis'}", f"dossier:  {out / 'dossier'}"]
     for line in where_lines(summary) + reports:
         print(line)
@@ -90,9 +120,19 @@ def register(sub) -> None:
                        formatter_class=argparse.RawDescriptionHelpFormatter,
                        epilog="examples:\n"
                               "  searcher demo --quick          the same work, smaller (a few minutes)\n"
-                              "  searcher demo --out /tmp/demo  the full demo into another folder")
+                              "  searcher demo --out /tmp/demo  the full demo into another folder\n"
+                              "  searcher demo --quick --trials 4 --epochs 2\n"
+                              "                                 a smoke test of an installation "
+                              "(about a minute)\n\n"
+                              "The demo writes into runs/ under the current folder; an "
+                              "installed package\ncarries the demo study, so any folder will "
+                              "do.")
     p.add_argument("--quick", action="store_true", help="a smaller demo (a few minutes)")
     p.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default runs/demo or runs/demo-quick)")
+    p.add_argument("--trials", type=int, default=None, metavar="N",
+                   help="search this many trials (overrides the demo's budget)")
+    p.add_argument("--epochs", type=int, default=None, metavar="N",
+                   help="train every trial (and every dossier re-run) for N epochs (N >= 2)")
     p.add_argument("--plain", action="store_true", help="plain progress lines, no live panel")
     p.set_defaults(handler=_handle)

@@ -38,7 +38,17 @@ def _file_stats(study, task: dict) -> dict:
     ds = build_dataset(task, cache_dir=study.output_dir / "cache")
     stats = graph_stats([ds.graphs[i] for i in ds.split["train"]])
     stats["graphs"] = max(1, round(stats["graphs"] * task["fidelity"]["train_fraction"]))
+    # a from_data cutoff reads the whole dataset's longest edge, as the trials do
+    stats.update({k: ds.stats["graphs"][k] for k in ("edge_len_max", "local_len_max")})
     return stats
+
+
+def _demo_edges(study, task: dict) -> dict:
+    """The demo dataset's longest edges (generated, as a from_data cutoff needs them)."""
+    from searcher.data import build_dataset
+
+    graphs = build_dataset(task, cache_dir=study.output_dir / "cache").stats["graphs"]
+    return {k: graphs[k] for k in ("edge_len_max", "local_len_max")}
 
 
 def _trial_seconds(cfg: dict, stats: dict, step_ms) -> float | None:
@@ -63,6 +73,7 @@ def gate_samples(study, configs: list[dict]) -> list[dict]:
     from searcher.data import describe_fields
     from searcher.errors import UserError
     from searcher.models import build_model, estimate_cost, run_gate
+    from searcher.options import DATA_DERIVED
     from searcher.search import guard_check
 
     out = []
@@ -71,6 +82,9 @@ def gate_samples(study, configs: list[dict]) -> list[dict]:
         fields = describe_fields(task)
         target = next(f.name for f in fields.values() if f.role == "target")
         stats = demo_stats(task) if task["source"] == "demo" else _file_stats(study, task)
+        if task["source"] == "demo" and cfg["model"]["radial"]["cutoff"] == DATA_DERIVED[
+                "model.radial.cutoff"]:
+            stats.update(_demo_edges(study, task))
         guard = {**cfg["search"]["guard"], "time_limit": cfg["training"]["time_limit"]}
         try:
             gate = run_gate(cfg["model"], fields, target, seed=int(cfg["training"]["seed"]),

@@ -31,7 +31,7 @@ from searcher.errors import UserError
 __all__ = ["Dataset", "GENERATOR_VERSION", "build_dataset", "data_hash", "describe_fields"]
 
 # Bump whenever generated values or stored layout change, so old caches are not reused.
-GENERATOR_VERSION = "flows-4"
+GENERATOR_VERSION = "flows-5"
 
 
 def describe_fields(task_cfg: dict) -> dict[str, Field]:
@@ -103,6 +103,7 @@ def _to_graph(task_cfg: dict, s: Sample, norm: Normaliser, counters: dict):
             f"graph of {where} has no edges at the chosen rule (rule={graph['rule']}, "
             f"radius={graph['radius']}, neighbours={graph['neighbours']}); raise task.graph.radius",
             file=s.source if s.source != "demo" else "", path="task.graph.radius")
+    counters["edges_dropped"] += int(s.info.get("edges_dropped", 0))   # a patch's own cap
     counters["realizability_scaled"] += int(s.info.get("realizability_scaled", 0))
     values = {k: norm.apply(k, v) for k, v in s.fields.items()}
     data = to_data(s.pos, edges, values, s.family, s.sample)

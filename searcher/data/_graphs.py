@@ -10,7 +10,8 @@ import warnings
 import numpy as np
 from scipy.spatial import cKDTree
 
-__all__ = ["build_edges", "to_data", "graph_stats", "RESERVED_NAMES"]
+__all__ = ["build_edges", "to_data", "graph_stats", "warn_long_edges", "check_cutoff",
+           "RESERVED_NAMES"]
 
 # Attribute names a field may not take on a Data record.
 RESERVED_NAMES = frozenset({"pos", "edge_index", "edge_vec", "edge_len", "family", "sample",
@@ -94,20 +95,100 @@ def to_data(pos: np.ndarray, edge_index: np.ndarray, fields: dict[str, np.ndarra
                 family=str(family), sample=int(sample), **attrs)
 
 
+def _longest(g) -> tuple[float, float]:
+    """Longest edge of a graph, absolute and over the mean length arriving at its receiver
+    (the units of ``model.radial.scale: local``)."""
+    length = g.edge_len.numpy().astype(np.float64)
+    if len(length) == 0:
+        return 0.0, 0.0
+    dst = g.edge_index[1].numpy()
+    total = np.bincount(dst, weights=length, minlength=g.num_nodes)
+    count = np.bincount(dst, minlength=g.num_nodes)
+    mean = total[dst] / count[dst]
+    local = np.divide(length, mean, out=np.zeros_like(length), where=mean > 0)
+    return float(length.max()), float(local.max())
+
+
 def graph_stats(graphs) -> dict:
-    """Nodes, edges and degrees over a list of ``Data`` (isolated nodes are warned)."""
-    if not graphs:
+    """Nodes, edges, degrees and longest edges over ``Data`` records (isolated nodes are
+    warned).
+
+    ``graphs`` may be any iterable, read once: a generator of patches is summed up one
+    graph at a time and never held whole.  ``edge_len_max`` is the longest edge;
+    ``local_len_max`` the longest edge over the mean length arriving at its receiver.
+    """
+    n = edges_total = nodes_total = isolated = degree_max = 0
+    nodes_min = edges_min = None
+    nodes_max = edges_max = 0
+    longest = local_longest = 0.0
+    for g in graphs:
+        nodes, edges = int(g.num_nodes), int(g.edge_index.shape[1])
+        degree = np.bincount(g.edge_index[1].numpy(), minlength=nodes)
+        n += 1
+        nodes_total += nodes
+        edges_total += edges
+        nodes_min = nodes if nodes_min is None else min(nodes_min, nodes)
+        edges_min = edges if edges_min is None else min(edges_min, edges)
+        nodes_max, edges_max = max(nodes_max, nodes), max(edges_max, edges)
+        isolated += int((degree == 0).sum())
+        degree_max = max(degree_max, int(degree.max(initial=0)))
+        far, far_local = _longest(g)
+        longest, local_longest = max(longest, far), max(local_longest, far_local)
+    if n == 0:
         return {"graphs": 0}
-    nodes = np.array([g.num_nodes for g in graphs])
-    edges = np.array([g.edge_index.shape[1] for g in graphs])
-    degree = np.concatenate([np.bincount(g.edge_index[1].numpy(), minlength=g.num_nodes)
-                             for g in graphs])
-    isolated = int((degree == 0).sum())
     if isolated:
         warnings.warn(f"{isolated} nodes have no incoming edge (they receive no messages); "
                       "raise task.graph.radius or use the neighbours rule", stacklevel=2)
-    return {"graphs": len(graphs), "nodes_mean": float(nodes.mean()), "nodes_min": int(nodes.min()),
-            "nodes_max": int(nodes.max()), "edges_mean": float(edges.mean()),
-            "edges_min": int(edges.min()), "edges_max": int(edges.max()),
-            "degree_mean": float(degree.mean()), "degree_max": int(degree.max()),
-            "isolated_nodes": isolated}
+    return {"graphs": n, "nodes_mean": nodes_total / n, "nodes_min": nodes_min,
+            "nodes_max": nodes_max, "edges_mean": edges_total / n,
+            "edges_min": edges_min, "edges_max": edges_max,
+            "degree_mean": edges_total / nodes_total, "degree_max": degree_max,
+            "isolated_nodes": isolated, "edge_len_max": longest, "local_len_max": local_longest}
+
+
+def warn_long_edges(graphs, cutoff: float, scale: str = "absolute") -> int:
+    """Warn once when edges of ``graphs`` are longer than the radial cutoff.
+
+    The envelope takes such an edge's message to zero, so the graph rule joins nodes the
+    model cannot hear (common with the neighbours rule, whose edges have no upper length).
+    With ``scale: local`` lengths are counted in the mean length arriving at the receiver.
+
+    Returns:
+        How many edges are longer than ``cutoff``.
+    """
+    count = total = 0
+    longest = 0.0
+    for g in graphs:
+        length = g.edge_len.numpy().astype(np.float64)
+        if scale == "local" and len(length):
+            dst = g.edge_index[1].numpy()
+            mean = np.bincount(dst, weights=length, minlength=g.num_nodes)[dst] / \
+                np.bincount(dst, minlength=g.num_nodes)[dst]
+            length = np.divide(length, mean, out=np.zeros_like(length), where=mean > 0)
+        count += int((length > cutoff).sum())
+        total += len(length)
+        longest = max(longest, float(length.max(initial=0.0)))
+    if count:
+        units = " mean local lengths" if scale == "local" else ""
+        warnings.warn(f"{count} of {total} edges are longer than model.radial.cutoff "
+                      f"{cutoff:g}{units} (longest {longest:.4g}); the envelope silences "
+                      "their messages: raise the cutoff or write model.radial.cutoff: "
+                      "from_data", stacklevel=2)
+    return count
+
+
+def check_cutoff(study, graphs) -> int:
+    """:func:`warn_long_edges` at the least cutoff the study's trials can take.
+
+    Nothing is checked for ``from_data`` (it covers every edge), a derived cutoff, or a
+    searched ``model.radial.scale`` (the units would change from trial to trial).
+
+    Returns:
+        How many edges are longer than that cutoff (0 when nothing is checked).
+    """
+    if any(d.name == "model.radial.scale" for d in study.dimensions):
+        return 0
+    cutoff = study.least("model.radial.cutoff")
+    if cutoff is None:
+        return 0
+    return warn_long_edges(graphs, float(cutoff), study.fixed()["model"]["radial"]["scale"])

@@ -14,8 +14,10 @@ on the graph as ``core``.  Domain decomposition with ghost layers is how CFD cod
 mesh (common practice).
 
 Memory: the cut needs only positions; halo hops query one cKDTree of the whole file; a
-piece's edges are built when the piece is made, so :func:`iter_patches` holds one piece's
-edges at a time.
+piece's edges are built when the piece is made, so :func:`iter_patches` and
+:func:`iter_cut` hold one piece's edges at a time, and :class:`PatchCensus` counts core
+cover from each piece's node indices as it passes (``data inspect`` surveys patched data
+that way, see ``_survey.py``).
 """
 from __future__ import annotations
 
@@ -27,7 +29,7 @@ from scipy.spatial import cKDTree
 from searcher.data._demo import Sample
 from searcher.data._graphs import build_edges
 
-__all__ = ["bisect", "iter_patches", "cut_samples", "patch_census"]
+__all__ = ["bisect", "iter_patches", "iter_cut", "cut_samples", "PatchCensus", "patch_census"]
 
 
 def bisect(pos: np.ndarray, size: int) -> list[np.ndarray]:
@@ -123,56 +125,86 @@ def iter_patches(sample: Sample, size: int, halo: int, graph: dict,
         pos = sample.pos[nodes]
         values = {name: (v[nodes] if v.shape[0] == n and n > 1 else v)
                   for name, v in sample.fields.items()}
+        dropped = 0
         if edges is not None:
             local = _sub_edges(edges, nodes, n)
         else:
-            local, _ = build_edges(pos, graph["rule"], graph["radius"], graph["neighbours"],
-                                   int(graph["edge_cap"]))
-        info = dict(sample.info, core=mask, patch=k, patches=len(pieces), nodes=nodes)
+            local, dropped = build_edges(pos, graph["rule"], graph["radius"],
+                                         graph["neighbours"], int(graph["edge_cap"]))
+        info = dict(sample.info, core=mask, patch=k, patches=len(pieces), nodes=nodes,
+                    edges_dropped=dropped)
         yield Sample(pos, values, sample.family, start + k, sample.source, local, info)
 
 
-def cut_samples(samples: list[Sample], task_cfg: dict) -> list[Sample]:
-    """Every sample with more than ``task.patches.size`` nodes replaced by its pieces."""
-    size = int((task_cfg.get("patches") or {}).get("size", 0))
-    if size <= 0:
-        return samples
+def iter_cut(samples, task_cfg: dict) -> Iterator[Sample]:
+    """Every sample with more than ``task.patches.size`` nodes replaced by its pieces, one
+    piece at a time (pieces are numbered in order from 0)."""
+    size = int(task_cfg["patches"]["size"])
     halo = int(task_cfg["patches"].get("halo", 0))
-    out = []
+    graph, mesh = task_cfg["graph"], bool(task_cfg.get("mesh_edges"))
+    made = 0
     for s in samples:
         if len(s.pos) <= size:   # one piece, all core, so every graph carries a mask
-            n = len(s.pos)
-            edges = s.edge_index if task_cfg.get("mesh_edges") and s.edge_index is not None \
-                else build_edges(s.pos, task_cfg["graph"]["rule"], task_cfg["graph"]["radius"],
-                                 task_cfg["graph"]["neighbours"],
-                                 int(task_cfg["graph"]["edge_cap"]))[0]
-            out.append(Sample(s.pos, s.fields, s.family, len(out), s.source, edges,
-                              dict(s.info, core=np.ones(n, dtype=bool), patch=0, patches=1,
-                                   nodes=np.arange(n))))
+            n, dropped = len(s.pos), 0
+            if mesh and s.edge_index is not None:
+                edges = s.edge_index
+            else:
+                edges, dropped = build_edges(s.pos, graph["rule"], graph["radius"],
+                                             graph["neighbours"], int(graph["edge_cap"]))
+            made += 1
+            yield Sample(s.pos, s.fields, s.family, made - 1, s.source, edges,
+                         dict(s.info, core=np.ones(n, dtype=bool), patch=0, patches=1,
+                              nodes=np.arange(n), edges_dropped=dropped))
             continue
-        out.extend(iter_patches(s, size, halo, task_cfg["graph"],
-                                bool(task_cfg.get("mesh_edges")), start=len(out)))
-    return out
+        for piece in iter_patches(s, size, halo, graph, mesh, start=made):
+            made += 1
+            yield piece
 
 
-def patch_census(samples: list[Sample], file_nodes: dict[str, int]) -> dict:
-    """Patch count, core and halo sizes, and whether core nodes cover each file exactly once.
+def cut_samples(samples: list[Sample], task_cfg: dict) -> list[Sample]:
+    """:func:`iter_cut` as a list (the samples unchanged when ``task.patches.size`` is 0)."""
+    if int((task_cfg.get("patches") or {}).get("size", 0)) <= 0:
+        return samples
+    return list(iter_cut(samples, task_cfg))
+
+
+class PatchCensus:
+    """Patch count, core and halo sizes, and whether core nodes cover each file exactly
+    once, counted piece by piece (a piece can be dropped once :meth:`add` has seen it).
 
     Args:
-        samples: the cut samples (pieces carry ``info["nodes"]`` and ``info["core"]``).
         file_nodes: source file → its node count.
     """
-    hits = {src: np.zeros(n, dtype=np.int64) for src, n in file_nodes.items()}
-    cores, halos, patches = [], [], 0
+
+    def __init__(self, file_nodes: dict[str, int]) -> None:
+        self.hits = {src: np.zeros(n, dtype=np.int32) for src, n in file_nodes.items()}
+        self.patches = self.files_cut = self.core_max = 0
+        self.core_total = self.halo_total = 0
+
+    def add(self, piece: Sample) -> None:
+        core = piece.info["core"]
+        self.patches += 1
+        self.files_cut += int(piece.info["patch"] == 0 and piece.info["patches"] > 1)
+        np.add.at(self.hits[piece.source], piece.info["nodes"][core], 1)
+        cores = int(core.sum())
+        self.core_total += cores
+        self.halo_total += len(core) - cores
+        self.core_max = max(self.core_max, cores)
+
+    def result(self) -> dict:
+        exact = all(bool((h == 1).all()) for h in self.hits.values())
+        n = max(self.patches, 1)
+        return {"patches": self.patches, "files_cut": self.files_cut,
+                "core_nodes_mean": self.core_total / n if self.patches else 0.0,
+                "core_nodes_max": self.core_max,
+                "halo_nodes_mean": self.halo_total / n if self.patches else 0.0,
+                "core_cover_exact": exact}
+
+
+def patch_census(samples, file_nodes: dict[str, int]) -> dict:
+    """:class:`PatchCensus` over cut samples (pieces carry ``info["nodes"]`` and
+    ``info["core"]``)."""
+    census = PatchCensus(file_nodes)
     for s in samples:
-        core = s.info["core"]
-        patches += 1
-        np.add.at(hits[s.source], s.info["nodes"][core], 1)
-        cores.append(int(core.sum()))
-        halos.append(int((~core).sum()))
-    exact = all(bool((h == 1).all()) for h in hits.values())
-    return {"patches": patches, "files_cut": sum(1 for s in samples if s.info["patch"] == 0
-                                                 and s.info["patches"] > 1),
-            "core_nodes_mean": float(np.mean(cores)) if cores else 0.0,
-            "core_nodes_max": max(cores, default=0), "halo_nodes_mean":
-            float(np.mean(halos)) if halos else 0.0, "core_cover_exact": exact}
+        census.add(s)
+    return census.result()

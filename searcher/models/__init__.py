@@ -9,6 +9,7 @@ the registries (:data:`FAMILIES`, :data:`RADIAL_BASES`, :data:`ENVELOPES`,
 from searcher.models._base import FAMILIES, FieldModel
 from searcher.models._build import build_model
 from searcher.models._cost import Cost, count_madds, estimate_cost
+from searcher.models._cutoff import CUTOFF_MARGIN, resolve_cutoff
 from searcher.models._build_cache import clear as clear_build_cache
 from searcher.models._gate import (GateResult, default_dtype, forget_verdicts, gate_function,
                                    gate_model, run_gate)
@@ -19,10 +20,10 @@ from searcher.models._radial import ENVELOPES, RADIAL_BASES, RadialEmbedding
 from searcher.models._registry import ACTIVATIONS, Registry
 
 __all__ = [
-    "ACTIVATIONS", "Cost", "ENVELOPES", "EdgeContext", "FAMILIES", "FieldModel", "GateResult",
+    "ACTIVATIONS", "CUTOFF_MARGIN", "Cost", "ENVELOPES", "EdgeContext", "FAMILIES", "FieldModel", "GateResult",
     "Geometry", "RADIAL_BASES", "RadialEmbedding", "Registry", "attach_geometry",
     "build_model", "clear_caches", "count_madds", "default_dtype", "estimate_cost", "gate_function", "gate_model",
-    "graph_from", "hidden_irreps", "radius_edges", "random_graph", "run_gate",
+    "graph_from", "hidden_irreps", "radius_edges", "random_graph", "resolve_cutoff", "run_gate",
     "unreachable_irreps",
 ]
 

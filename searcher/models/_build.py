@@ -7,6 +7,7 @@ from ._base import FAMILIES
 # Importing the family modules fills the registry.
 from . import _baselines, _gated, _steerable, _tensor_basis  # noqa: F401
 from ._build_cache import install, lean_codegen, unfused
+from ._cutoff import resolve_cutoff
 from ._fused import fuse_products
 
 install()  # e3nn's structure-only set-up is generated once per process (see _build_cache)
@@ -26,7 +27,8 @@ def build_model(model_cfg: dict, fields: dict, target: str, *,
         target: the target field's name.
         stats: optional data statistics (as :func:`searcher.data.graph_stats` gives them);
             ``degree_mean`` (mean incoming edges per node) is the constant of
-            ``aggregate: degree`` (1 when absent).
+            ``aggregate: degree`` (1 when absent); ``edge_len_max``/``local_len_max``
+            give a ``model.radial.cutoff: from_data`` its number (:func:`resolve_cutoff`).
         kernels: ``"fused"`` (default) evaluates the ``uvw``/``uvu`` tensor products with
             :mod:`searcher.models._fused` (same weights and state dict, same sums in another
             order, 1.1-1.5x faster training steps); ``"e3nn"`` keeps e3nn's generated code
@@ -46,6 +48,7 @@ def build_model(model_cfg: dict, fields: dict, target: str, *,
     """
     if kernels not in KERNELS:
         raise ValueError(f"kernels must be one of {KERNELS}, got {kernels!r}")
+    model_cfg = resolve_cutoff(model_cfg, stats)
     if kernels == "e3nn":
         return FAMILIES.get(model_cfg["family"])(model_cfg, fields, target, stats)
     with lean_codegen():

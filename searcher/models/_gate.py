@@ -20,6 +20,7 @@ from e3nn.util.test import equivariance_error
 from scipy.spatial.transform import Rotation
 
 from ._build import build_model
+from ._cutoff import resolve_cutoff
 from ._probe import graph_from, random_graph
 
 __all__ = ["GateResult", "run_gate", "gate_model", "gate_function", "default_dtype",
@@ -210,6 +211,7 @@ def run_gate(model_cfg: dict, fields: dict, target: str, *, seed: int = 0,
 
         run_gate(cfg["model"], fields, "anisotropy").passed   # True
     """
+    model_cfg = resolve_cutoff(model_cfg, stats)
     key = _verdict_key(model_cfg, fields, target, tol, stats, float32)
     if key not in _VERDICTS:
         with torch.random.fork_rng(devices=[]), default_dtype(torch.float64):

@@ -117,7 +117,7 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
     Returns:
         A :class:`RunSummary`.
     """
-    from searcher.data import build_dataset
+    from searcher.data import build_dataset, check_cutoff
 
     from ._live import Monitor
     from searcher.outcomes import best_record, tally
@@ -157,7 +157,8 @@ def run_study(study, *, workers: int | None = None, trials: int | None = None,
         # the data's own warnings (isolated nodes, ...) become one note each, printed once
         # by the caller, not a Python warning per process
         warnings.simplefilter("always", UserWarning)
-        build_dataset(cfg["task"], cache_dir=output_dir / "cache")
+        dataset = build_dataset(cfg["task"], cache_dir=output_dir / "cache")
+        check_cutoff(study, dataset.graphs)   # once per dataset, not once per trial
     notes = list(dict.fromkeys(f"data: {w.message}" for w in caught
                                if issubclass(w.category, UserWarning)))
     lost, queued = recover(opt)

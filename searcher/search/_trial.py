@@ -114,7 +114,11 @@ class TrialRunner:
         for key, value in (("host", HOST), ("pid", os.getpid()), ("worker", self.worker),
                            *self.attrs.items()):
             trial.set_user_attr(key, value)
+        from searcher.models import resolve_cutoff
+
         config = self.study.suggest(trial)
+        # a data-derived cutoff is stored as its number, so the trial re-runs exactly
+        config["model"] = resolve_cutoff(config["model"], self.dataset.stats["graphs"])
         seed = trial_seed(config["training"]["seed"], trial.number)
         config["training"]["seed"] = seed
         from searcher.spec import config_hash

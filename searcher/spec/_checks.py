@@ -320,6 +320,10 @@ def _check_epochs(dims: dict, fixed: dict, sink: Sink):
     if budgeted and pruner["min_epochs"] > pruner["max_epochs"]:
         sink.add(f"min_epochs {pruner['min_epochs']} exceeds max_epochs {pruner['max_epochs']}",
                  ("search", "pruner", "min_epochs"))
+    elif pruner["kind"] == "outlook" and pruner["min_epochs"] == pruner["max_epochs"]:
+        # outlook compares a curve's start with its end, so it needs a window of 2 epochs
+        sink.add(f"min_epochs {pruner['min_epochs']} must be below max_epochs "
+                 f"{pruner['max_epochs']} for the outlook pruner", ("search", "pruner", "min_epochs"))
     warmup = _possible("training.warmup_epochs", dims, fixed)
     if warmup is not None and max(warmup) >= min(epochs):
         sink.add(f"warmup_epochs {max(warmup)} must be below training.epochs ({min(epochs)})",

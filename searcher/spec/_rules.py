@@ -10,10 +10,10 @@ import math
 import re
 from dataclasses import dataclass
 
-from searcher.options import AUGMENT_MODES, REGISTERED
+from searcher.options import AUGMENT_MODES, DATA_DERIVED, REGISTERED
 from searcher.spec._irreps import FIELD_KINDS, parse_irreps
 
-__all__ = ["Rule", "Whole", "Real", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
+__all__ = ["Rule", "Whole", "Real", "RealOrWord", "OneOf", "Flag", "Text", "Names", "Irreps", "Fractions",
            "Fields", "FIELD_ROLES", "RULES", "DEMO_FAMILIES", "STRESS_SETS", "EDGE_INVARIANTS",
            "VARYING_SECTIONS", "NAME_PATTERN", "RENAMED_KEYS", "RENAMED_VALUES",
            "MEANING_NOTES"]
@@ -100,6 +100,22 @@ class Real(Rule):
         if self.hi is not None:
             out["exclusiveMaximum" if self.hi_open else "maximum"] = self.hi
         return out
+
+
+@dataclass(frozen=True)
+class RealOrWord(Real):
+    """A number as for :class:`Real`, or one word that stands for a value the data decide."""
+
+    word: str = ""
+
+    def allowed(self) -> str:
+        return f"{super().allowed()}, or {self.word!r}"
+
+    def problem(self, value):
+        return None if value == self.word else super().problem(value)
+
+    def schema(self):
+        return {"anyOf": [super().schema(), {"const": self.word}]}
 
 
 @dataclass(frozen=True)
@@ -256,7 +272,9 @@ RULES: dict[str, Rule] = {
     "model.node_inputs": Names(nonempty=True),
     "model.edge_invariants": Names(EDGE_INVARIANTS),
     "model.radial.basis": OneOf(REGISTERED["model.radial.basis"]),
-    "model.radial.count": Whole(1, 128), "model.radial.cutoff": _POS,
+    "model.radial.count": Whole(1, 128),
+    "model.radial.cutoff": RealOrWord(0, None, lo_open=True,
+                                      word=DATA_DERIVED["model.radial.cutoff"]),
     "model.radial.envelope": OneOf(REGISTERED["model.radial.envelope"]),
     "model.radial.power": Whole(1, 32),
     "model.radial.scale": OneOf(("absolute", "local")),

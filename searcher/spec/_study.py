@@ -56,7 +56,7 @@ def config_hash(config: dict) -> str:
 
 
 def _coerce(dotted: str, value):
-    if isinstance(RULES.get(dotted), Real) and not isinstance(value, bool):
+    if isinstance(RULES.get(dotted), Real) and not isinstance(value, (bool, str)):
         return float(value)
     return copy.deepcopy(value)
 
@@ -211,6 +211,21 @@ class Study:
     def fixed(self) -> dict:
         """Resolved config with every searched dimension at its default."""
         return self._walk(lambda dim: dim.default)
+
+    def least(self, dotted: str):
+        """The smallest number key ``dotted`` can take in this study's trials: its fixed
+        value, a range's low end or the least numeric choice (and the default while a
+        condition leaves it inactive); None when derived or when it takes no number."""
+        dim = next((d for d in self.dimensions if d.name == dotted), None)
+        if dim is None:
+            values = [get(self.fixed(), dotted)]
+        elif dim.kind == "derived":
+            return None
+        else:
+            values = list(dim.options) if dim.kind == "choice" else [dim.lo]
+            values += [dim.default] if dim.only_if else []
+        numbers = [v for v in values if isinstance(v, (int, float)) and not isinstance(v, bool)]
+        return min(numbers) if numbers else None
 
     def sample(self, k: int, seed: int = 0) -> list[dict]:
         """``k`` resolved configs drawn uniformly; the same seed gives the same list."""

@@ -45,6 +45,14 @@ def test_no_pruner_means_no_pruner_budget(tmp_path):
     assert p.path == "search.pruner.max_epochs"
 
 
+def test_outlook_needs_a_window_of_two_epochs(tmp_path):
+    # OutlookPruner refuses min_epochs == max_epochs; the spec says so first, with the key
+    same = {"min_epochs": 3, "max_epochs": 3}
+    p = _problem(tmp_path, tiny_study_doc(search={"pruner": {"kind": "outlook", **same}}))
+    assert p.path == "search.pruner.min_epochs" and "below max_epochs 3" in p.message
+    _load(tmp_path, tiny_study_doc(search={"pruner": {"kind": "hyperband", **same}}))
+
+
 def test_a_problem_without_a_file_prints_no_placeholder():
     assert Problem("must be at least 1", path="--finalists").render() == \
         "[--finalists] must be at least 1"
