@@ -163,12 +163,13 @@ def _headline(name: str, value) -> tuple[str, float | None]:
                 value["gap_decades"])
     if name == "patches":
         rows = [f"{r['nodes']:.0e} nodes {r['seconds']:.1f} s {r['peak_mib']:.0f} MiB "
-                f"({r['patches']} patches, cover {'exact' if r['core_cover_exact'] else 'WRONG'})"
-                for r in value["rows"]]
+                f"(+{r['above_floor_mib']:.0f} over imports; {r['patches']} patches, cover "
+                f"{'exact' if r['core_cover_exact'] else 'WRONG'})" for r in value["rows"]]
         build = value.get("build")
         if build:
             rows.append(f"full build at {build['nodes']:.0e}: {build['ratio_peak']:.2f}x the "
-                        f"peak, {build['ratio_seconds']:.2f}x the time")
+                        f"peak (+{build['above_floor_mib']:.0f} MiB over imports), "
+                        f"{build['ratio_seconds']:.2f}x the time")
         return "; ".join(rows) + f"; imports alone {value['floor_mib']:.0f} MiB", \
             value["peak_gib"]
     return "", None
