@@ -59,7 +59,11 @@ def choice_study(config: dict, *, name: str, summary: str) -> dict:
     # with fewer epochs than the search did); the pruner plays no part in the weights.
     pruner, epochs = out["search"]["pruner"], int(out["training"]["epochs"])
     pruner["max_epochs"] = min(int(pruner["max_epochs"]), epochs)
-    pruner["min_epochs"] = min(int(pruner["min_epochs"]), pruner["max_epochs"])
+    # The outlook pruner needs min_epochs strictly below max_epochs; a one-epoch run has no
+    # room to prune at all.
+    pruner["min_epochs"] = max(1, min(int(pruner["min_epochs"]), pruner["max_epochs"] - 1))
+    if pruner["max_epochs"] <= 1:
+        pruner["kind"] = "none"
     source = out["task"]["source"]
     if source != "demo" and not Path(source).is_absolute():
         out["task"]["source"] = str(Path(source).resolve())
