@@ -104,7 +104,8 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
     fixed = study.fixed()
     with tempfile.TemporaryDirectory() as scratch:  # analysis' own files are not ours to keep
         analysis = analyze(study, store, scratch)
-    candidates, notes = choose_finalists(study, read_trials(store), analysis,
+    trial_records = read_trials(store)
+    candidates, notes = choose_finalists(study, trial_records, analysis,
                                          settings["finalists"])
     tracker = DossierTracker(study)
     notes += [tracker.note] if tracker.note else []
@@ -151,7 +152,7 @@ def make_dossier(study, *, finalists: int | None = None, seeds: int | None = Non
     records.append(run(control))
     learned = [run(tensor_basis)] if tensor_basis else []
     baselines = score_references(dataset) + [learned_row(f) for f in learned]
-    trials = time_trials(read_trials(store), dataset)
+    trials = time_trials(trial_records, dataset)
     files = {**FILES, "plots": plot_files()}
     summary = fixed["study"]
     content = assemble(

@@ -36,7 +36,7 @@ def pareto_flags(points: list[dict]) -> list[bool]:
             for i in range(len(points))]
 
 
-def time_trials(records, dataset, *, study_name: str = "") -> list[dict]:
+def time_trials(records, dataset) -> list[dict]:
     """Inference time and multiply-adds of every completed trial's architecture.
 
     Returns:
