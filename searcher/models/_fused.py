@@ -40,6 +40,7 @@ import torch
 from e3nn import o3
 
 from ._build_cache import stored_plan
+from ._compiled import CompiledProduct, kernel_module
 from ._fusable import fusable_paths
 
 __all__ = ["FusedProduct", "FusedLinear", "fuse_products", "fusable", "fusable_paths"]
@@ -173,14 +174,20 @@ class FusedProduct:
             self._cast[key] = (groups, blocks, perm, conv(self.gather))
         return self._cast[key]
 
-    def __call__(self, x1: torch.Tensor, x2: torch.Tensor, weight: torch.Tensor) -> torch.Tensor:
+    def rows(self, x1: torch.Tensor, x2: torch.Tensor, weight: torch.Tensor):
+        """``(lead shape, x1 [Z, dim1], x2 [Z, dim2], weight [W] or [Z, W])`` after
+        broadcasting the leading dimensions, as e3nn does."""
         lead = torch.broadcast_shapes(x1.shape[:-1], x2.shape[:-1],
                                       () if self.shared else weight.shape[:-1])
         x1 = x1.expand(*lead, self.dim1).reshape(-1, self.dim1)
         x2 = x2.expand(*lead, self.dim2).reshape(-1, self.dim2)
-        z = x1.shape[0]
         if not self.shared:
-            weight = weight.expand(*lead, weight.shape[-1]).reshape(z, -1)
+            weight = weight.expand(*lead, weight.shape[-1]).reshape(x1.shape[0], -1)
+        return lead, x1, x2, weight
+
+    def __call__(self, x1: torch.Tensor, x2: torch.Tensor, weight: torch.Tensor) -> torch.Tensor:
+        lead, x1, x2, weight = self.rows(x1, x2, weight)
+        z = x1.shape[0]
         groups, blocks, perm, gather = self._constants(x1.dtype, x1.device)
         x1s = (x1 if perm is None else x1.index_select(1, perm)).split(self.split1, 1)
         ys = []
@@ -261,12 +268,23 @@ def _linear_fusable(lin) -> bool:
 
 
 class _FusedMixin:
-    """``forward`` through the product's :class:`FusedProduct` (same weights, same math)."""
+    """``forward`` through the compiled kernel (:mod:`._compiled`) where it runs, else
+    through the product's :class:`FusedProduct` (same weights, same math)."""
 
     def forward(self, x, y, weight=None):
         torch._assert(x.shape[-1] == self._in1_dim, "Incorrect last dimension for x")
         torch._assert(y.shape[-1] == self._in2_dim, "Incorrect last dimension for y")
-        return self._fused(x, y, self._get_weights(weight))
+        weight = self._get_weights(weight)
+        kernel = kernel_module() if x.device.type == "cpu" else None
+        if kernel is None:
+            return self._fused(x, y, weight)
+        plan = self._fused
+        lead, x1, x2, weight = plan.rows(x, y, weight)
+        compiled = self.__dict__.get("_compiled")
+        if compiled is None:
+            compiled = self._compiled = _compiled_plan(self)
+        out = compiled(kernel, x1.contiguous(), x2.contiguous(), weight.contiguous())
+        return out.reshape(*lead, plan.dim_out)
 
 
 class FusedTensorProduct(_FusedMixin, o3.TensorProduct):
@@ -306,7 +324,14 @@ def fuse_products(model: torch.nn.Module) -> int:
     return count
 
 
+def _key(tp: o3.TensorProduct) -> tuple:
+    return (str(tp.irreps_in1), str(tp.irreps_in2), str(tp.irreps_out),
+            tuple(tp.instructions), bool(tp.shared_weights))
+
+
 def _plan(tp: o3.TensorProduct) -> FusedProduct:
-    key = (str(tp.irreps_in1), str(tp.irreps_in2), str(tp.irreps_out),
-           tuple(tp.instructions), bool(tp.shared_weights))
-    return stored_plan(key, lambda: FusedProduct(tp))
+    return stored_plan(_key(tp), lambda: FusedProduct(tp))
+
+
+def _compiled_plan(tp: o3.TensorProduct) -> CompiledProduct:
+    return stored_plan(("compiled",) + _key(tp), lambda: CompiledProduct(tp))
