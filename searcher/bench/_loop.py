@@ -4,7 +4,8 @@ Both sides train the same architecture from the same initial state dict on the s
 (``fidelity_graphs`` of the demo dataset) for the same number of epochs, setup included
 (collation, geometry, validation passes); repetitions alternate A, B, A, B so slow drifts of
 a shared machine hit both, and medians are compared.  Ours is the model ``build_model``
-gives (fused tensor-product kernels); the reference, ``scripts/reference_loop.py``, trains
+gives (the compiled tensor-product kernel where it builds, :mod:`searcher.models._compiled`),
+timed a third time within ``pytorch_kernels()`` (the fused PyTorch fallback); the reference, ``scripts/reference_loop.py``, trains
 the plain-e3nn build of it (``kernels="e3nn"``), loaded with the same state dict.
 
 ``flop_utilisation`` divides the multiply-adds of one training step (tensor-product paths
@@ -22,6 +23,8 @@ from functools import cache
 from pathlib import Path
 
 import torch
+
+from searcher.models._compiled import kernel_status, pytorch_kernels
 
 __all__ = ["loop_vs_reference", "flop_utilisation", "matmul_rate", "sized_config",
            "reference_module"]
@@ -106,13 +109,20 @@ def loop_vs_reference(dataset, base: dict, *, sizes=(1, 2, 3), families=("steera
             init = copy.deepcopy(model.state_dict())
             _ours(model, dataset, cfg, init)
             _theirs(plain, dataset, cfg, init)
-            ours, theirs = [], []
+            with pytorch_kernels():
+                _ours(model, dataset, cfg, init)
+            ours, theirs, fallback = [], [], []
             for _ in range(repeats):
                 ours.append(_ours(model, dataset, cfg, init))
                 theirs.append(_theirs(plain, dataset, cfg, init))
+                with pytorch_kernels():
+                    fallback.append(_ours(model, dataset, cfg, init))
             o, r = statistics.median(ours), statistics.median(theirs)
+            f = statistics.median(fallback)
             rows.append({"family": family, "lmax": lmax, "epochs": epochs,
-                         "ours_s": o, "reference_s": r, "ratio": r / o})
+                         "kernel": kernel_status(), "ours_s": o, "reference_s": r,
+                         "fallback_s": f, "ratio": r / o, "ratio_fallback": r / f,
+                         "compiled_vs_fallback": f / o})
     return rows
 
 
@@ -171,10 +181,15 @@ def flop_utilisation(dataset, base: dict, *, sizes=(1, 2, 3), family: str = "ste
         madds = 3 * (per_edge * batch.num_edges + per_node * batch.num_nodes)
         step_s = _step_seconds(model, batch, cfg, target, steps)
         plain_s = _step_seconds(plain, batch, cfg, target, steps)
+        with pytorch_kernels():
+            fallback_s = _step_seconds(model, batch, cfg, target, steps)
         dense = matmul_rate()
-        rows.append({"family": family, "lmax": lmax, "madds_per_step": madds,
+        rows.append({"family": family, "lmax": lmax, "kernel": kernel_status(),
+                     "edges": batch.num_edges, "madds_per_step": madds,
                      "step_ms": step_s * 1e3, "step_ms_e3nn": plain_s * 1e3,
+                     "step_ms_fallback": fallback_s * 1e3,
                      "madds_per_s": madds / step_s, "matmul_madds_per_s": dense,
                      "fraction": madds / step_s / dense,
-                     "fraction_e3nn": madds / plain_s / dense})
+                     "fraction_e3nn": madds / plain_s / dense,
+                     "fraction_fallback": madds / fallback_s / dense})
     return rows

@@ -32,8 +32,10 @@ PLANS = {
              "patch_sizes": (100_000, 300_000, 1_000_000)},
 }
 # figure -> (comparison, goal)
-GOALS = {"loop_vs_reference": (">=", 1.0), "flop_utilisation": (">=", 0.25),
-         "worker_scaling": (">=", 1.8), "overhead": ("<=", 0.02), "analysis_10k": ("<=", 30.0),
+GOALS = {"loop_vs_reference": (">=", 2.0), "flop_utilisation": (">=", 0.25),
+         "worker_scaling": (">=", 1.8), "overhead": ("<=", 0.05), "analysis_10k": ("<=", 30.0),
+         # seconds of the one cold build per machine: reported, no goal
+         "kernel_cost": (None, None),
          # the census has two goals: share in SHARE_GOAL and this gap (see _census.py)
          "census": (">=", DEEP_DECADES),
          # peak resident GiB of surveying the largest patched file (data inspect)
@@ -85,6 +87,7 @@ def run_bench(*, quick: bool, cache: Path, only: tuple[str, ...] = (), plan: dic
     """
     import torch
 
+    from ._kernels import kernel_cost
     from ._loop import flop_utilisation, loop_vs_reference
     from ._sweep import overhead, worker_scaling
 
@@ -105,6 +108,8 @@ def run_bench(*, quick: bool, cache: Path, only: tuple[str, ...] = (), plan: dic
                                                  demo=plan["demo"]),
         "overhead": lambda: overhead(trials=plan["overhead_trials"],
                                      epochs=plan["overhead_epochs"], demo=plan["demo"]),
+        "kernel_cost": lambda: kernel_cost(dataset, base, sizes=plan["sizes"],
+                                           families=plan["families"]),
         "analysis_10k": lambda: {"n": plan["analysis_n"], "seconds": _analysis(plan)},
         "pruners": lambda: bench_pruners(quick),
         "census": lambda: census(_loop_root() / "studies" / "demo.yaml", int(plan["census_n"])),
@@ -141,12 +146,23 @@ def _patches(plan: dict) -> dict:
 def _headline(name: str, value) -> tuple[str, float | None]:
     """(detail, value compared with the goal) of one figure."""
     if name == "loop_vs_reference":
-        parts = [f"{r['family']} l{r['lmax']} {r['ratio']:.2f}" for r in value]
-        return ", ".join(parts), min(r["ratio"] for r in value)
+        parts = [f"{r['family']} l{r['lmax']} {r['ratio']:.2f} (fallback "
+                 f"{r['ratio_fallback']:.2f})" for r in value]
+        return ", ".join(parts) + f"; kernel: {value[0]['kernel']}", \
+            min(r["ratio"] for r in value)
     if name == "flop_utilisation":
-        parts = [f"l{r['lmax']} {r['fraction']:.3f} (e3nn {r['fraction_e3nn']:.3f})"
-                 for r in value]
-        return ", ".join(parts), max(r["fraction"] for r in value)
+        parts = [f"l{r['lmax']} {r['fraction']:.3f} (fallback {r['fraction_fallback']:.3f}, "
+                 f"e3nn {r['fraction_e3nn']:.3f})" for r in value]
+        return ", ".join(parts) + f"; {value[0]['edges']} edges a batch", \
+            max(r["fraction"] for r in value)
+    if name == "kernel_cost":
+        if "build_s" not in value:
+            return f"kernel: {value['status']}", None
+        return (f"cold build {value['build_s']:.1f} s once per machine (imports "
+                f"{value['imports_s']:.1f} s of it), cached load {value['load_s']:.1f} s; "
+                f"tables {value['tables_ms_median']:.2f} ms a structure (max "
+                f"{value['tables_ms_max']:.2f}, {value['structures']} structures); "
+                f"{value['child_status']}", value["build_s"])
     if name == "worker_scaling":
         return (f"{value['per_hour_2']:.0f} vs {value['per_hour_1']:.0f} trials/h",
                 value["ratio"])
@@ -183,6 +199,9 @@ def format_table(record: dict) -> str:
             continue
         detail, number = _headline(name, value)
         op, goal = GOALS[name]
+        if op is None or number is None:
+            rows.append((name, "-" if number is None else f"{number:.3g}", "-", "-", detail))
+            continue
         met = value["met"] if name == "census" else (number >= goal if op == ">=" else
                                                      number <= goal)
         rows.append((name, f"{number:.3g}", f"{op} {goal:g}", "met" if met else "missed",

@@ -51,7 +51,27 @@ def test_loop_ratio_rows(demo):
                              repeats=1)
     # derived: the one family and size asked for
     assert [(r["family"], r["lmax"]) for r in rows] == [("gated", 1)]
-    assert set(rows[0]) == {"family", "lmax", "epochs", "ours_s", "reference_s", "ratio"}
+    assert set(rows[0]) == {"family", "lmax", "epochs", "kernel", "ours_s", "reference_s",
+                            "fallback_s", "ratio", "ratio_fallback", "compiled_vs_fallback"}
+    r = rows[0]
+    # derived: each ratio is the quotient of the medians it names
+    assert r["ratio"] == pytest.approx(r["reference_s"] / r["ours_s"])
+    assert r["compiled_vs_fallback"] == pytest.approx(r["fallback_s"] / r["ours_s"])
+
+
+def test_kernel_cost_figure(demo):
+    # The per-structure tables of every distinct fusable product of the asked models; the
+    # cold build (a child process, ~40 s) is the full bench's job, so it is skipped here.
+    from searcher.bench._kernels import kernel_cost
+
+    dataset, base = demo
+    cost = kernel_cost(dataset, base, sizes=(1,), families=("gated",), cold_build=False)
+    assert cost["structures"] >= 1 and cost["tables_ms_max"] >= cost["tables_ms_median"] > 0
+    assert "build_s" not in cost and cost["imports_s"] > 0
+    table = format_table({"figures": {"kernel_cost": cost}, "mode": "quick",
+                          "machine": {"nproc": 1, "cpu": "x", "torch": "t", "e3nn": "e",
+                                      "threads": 1}})
+    assert "kernel_cost" in table and cost["status"] in table
 
 
 def test_in_process_figures_and_table(tmp_path):

@@ -43,6 +43,9 @@ def test_wheel_installs_and_runs_from_an_empty_folder(tmp_path):
         # the shipped copies are the source tree's files, byte for byte
         assert zipfile.ZipFile(wheel).read(f"searcher/examples/{rel}") == (ROOT / rel).read_bytes()
     assert "searcher/spec/defaults.yaml" in names
+    # the compiled kernel's source, so an installed tool builds it too
+    assert zipfile.ZipFile(wheel).read("searcher/models/_kernel.cpp") == \
+        (ROOT / "searcher/models/_kernel.cpp").read_bytes()
     site = tmp_path / "site"
     _run(["-m", "pip", "install", "--no-deps", "-q", "--target", str(site), str(wheel)],
          tmp_path, env)
