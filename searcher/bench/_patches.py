@@ -7,7 +7,10 @@ measurement runs in a fresh process, whose peak resident memory (``ru_maxrss``) 
 time are reported, beside a process that only imports the same modules (the floor every
 command pays, mostly torch).  At the largest size the full in-memory ``build_dataset`` of
 the same file runs too, side by side, so the ratio says what holding one patch at a time
-saves (at small sizes both sit on the import floor).
+saves (at small sizes both sit on the import floor), and so does one epoch of training on
+it (``fit`` at full fidelity, a tiny gated model, :data:`TRAIN_BATCH` patches a batch): the
+bound of training on patched data, which holds every patch graph of the training split and
+its cached edge geometry in memory, besides one batch's activations.
 """
 from __future__ import annotations
 
@@ -20,9 +23,10 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["bench_patches", "PATCH", "HALO"]
+__all__ = ["bench_patches", "PATCH", "HALO", "TRAIN_BATCH"]
 
 PATCH, HALO, NEIGHBOURS = 5_000, 1, 6
+TRAIN_BATCH = 4
 _FIELDS = {"velocity": {"kind": "vector", "role": "input", "level": "node"},
            "pressure": {"kind": "scalar", "role": "target", "level": "node"}}
 
@@ -39,12 +43,15 @@ def _task(path: Path) -> dict:
 
 
 def _child(mode: str, path: str) -> None:
-    """Run in the measured process: ``survey``, ``build`` or ``imports`` only."""
+    """Run in the measured process: ``survey``, ``build``, ``train`` or ``imports`` only."""
     import resource
     import time
     import warnings
 
     from searcher.data import build_dataset, survey_dataset
+    from searcher.models import build_model
+    from searcher.testing import tiny_fit_config
+    from searcher.train import fit
 
     task = _task(Path(path))
     start = time.perf_counter()
@@ -60,6 +67,18 @@ def _child(mode: str, path: str) -> None:
             stats = build_dataset(task).stats
             out = {"patches": stats["patches"]["patches"],
                    "core_cover_exact": stats["patches"]["core_cover_exact"]}
+        elif mode == "train":
+            cfg = tiny_fit_config(epochs=1)
+            cfg["task"] = task
+            cfg["training"]["batch_size"] = TRAIN_BATCH
+            ds = build_dataset(task)
+            model = build_model(cfg["model"], ds.fields, ds.target.name,
+                                stats=ds.stats["graphs"])
+            result = fit(model, ds, cfg, full_fidelity=True)
+            train = [ds.graphs[i] for i in ds.split["train"]]
+            out = {"status": result.status, "train_patches": len(train),
+                   "train_nodes": sum(g.num_nodes for g in train),
+                   "train_edges": sum(int(g.edge_index.shape[1]) for g in train)}
     out.update(seconds=time.perf_counter() - start,
                peak_mib=resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024)
     print(json.dumps(out))
@@ -88,12 +107,14 @@ def bench_patches(sizes=(100_000, 300_000), compare_at: int | None = None) -> di
 
     Args:
         sizes: node counts, one file each.
-        compare_at: the size at which the full ``build_dataset`` runs beside the survey
-            (default the largest).
+        compare_at: the size at which the full ``build_dataset`` and one epoch of training
+            run beside the survey (default the largest).
 
     Returns:
         ``{"floor_mib", "rows": [{nodes, patches, edges, core_cover_exact, seconds,
-        peak_mib}], "build": {nodes, seconds, peak_mib, ratio_peak, ratio_seconds}}``.
+        peak_mib}], "build": {nodes, seconds, peak_mib, ratio_peak, ratio_seconds},
+        "train": {nodes, status, train_patches, train_nodes, train_edges, seconds,
+        peak_mib, above_floor_mib, ratio_peak}}``.
     """
     compare_at = max(sizes) if compare_at is None else compare_at
     out = {"patch": PATCH, "halo": HALO, "neighbours": NEIGHBOURS, "rows": []}
@@ -112,6 +133,10 @@ def bench_patches(sizes=(100_000, 300_000), compare_at: int | None = None) -> di
                                 "above_floor_mib": full["peak_mib"] - out["floor_mib"],
                                 "ratio_peak": full["peak_mib"] / row["peak_mib"],
                                 "ratio_seconds": full["seconds"] / row["seconds"]}
+                trained = _measure("train", path)
+                out["train"] = {"nodes": n, **trained,
+                                "above_floor_mib": trained["peak_mib"] - out["floor_mib"],
+                                "ratio_peak": trained["peak_mib"] / row["peak_mib"]}
             path.unlink()
     out["peak_gib"] = max(r["peak_mib"] for r in out["rows"]) / 1024
     return out

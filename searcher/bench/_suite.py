@@ -186,6 +186,12 @@ def _headline(name: str, value) -> tuple[str, float | None]:
             rows.append(f"full build at {build['nodes']:.0e}: {build['ratio_peak']:.2f}x the "
                         f"peak (+{build['above_floor_mib']:.0f} MiB over imports), "
                         f"{build['ratio_seconds']:.2f}x the time")
+        train = value.get("train")
+        if train:
+            rows.append(f"one epoch of training at {train['nodes']:.0e} ({train['status']}; "
+                        f"{train['train_patches']} patches, {train['train_nodes']} nodes held): "
+                        f"{train['peak_mib']:.0f} MiB (+{train['above_floor_mib']:.0f} over "
+                        f"imports), {train['ratio_peak']:.2f}x the survey's peak")
         return "; ".join(rows) + f"; imports alone {value['floor_mib']:.0f} MiB", \
             value["peak_gib"]
     return "", None

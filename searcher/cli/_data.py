@@ -90,21 +90,24 @@ def _task(args) -> dict:
 
 
 def _inspect(args) -> int:
-    from searcher.data import build_dataset, check_cutoff, describe_fields, survey_dataset
+    from searcher.data import build_dataset, describe_fields, long_edges, survey_dataset
 
     task = _task(args)
     patched = task["source"] != "demo" and int((task.get("patches") or {}).get("size", 0)) > 0
+    study = None
+    if args.study:   # the study's radial cutoff is checked against the data's edges
+        from searcher.spec import load_study
+
+        study = load_study(args.study)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         if patched:   # large files: summed up one patch at a time, no graph kept
-            digest, stats = survey_dataset(task)
+            digest, stats = survey_dataset(task, study)
         else:
             ds = build_dataset(task)
             digest, stats = ds.hash, ds.stats
-            if args.study:   # the study's radial cutoff against the data's edges
-                from searcher.spec import load_study
-
-                check_cutoff(load_study(args.study), ds.graphs)
+            if study is not None:
+                stats = dict(stats, long_edges=long_edges(study, ds.graphs))
     fields = describe_fields(task)
     report = {"source": args.source, "hash": digest,
               "fields": [f.to_dict() for f in fields.values()], "stats": stats,
@@ -123,6 +126,13 @@ def _inspect(args) -> int:
     print(f"degree mean {g['degree_mean']:.2f}, max {g['degree_max']}; isolated nodes "
           f"{g['isolated_nodes']}; edges dropped by cap {s['edges_dropped']}; longest edge "
           f"{g['edge_len_max']:.4g}")
+    long = s.get("long_edges")
+    if long:
+        units = " mean local lengths" if long["scale"] == "local" else ""
+        print(f"cutoff  {long['edges_over']} of {long['edges']} edges longer than the least "
+              f"model.radial.cutoff {long['cutoff']:g}{units} (longest {long['longest']:.4g})")
+    elif "long_edges" in s:
+        print("cutoff  not checked (from_data, derived, or a searched radial scale)")
     print("split   " + "  ".join(f"{k} {v}" for k, v in s["split"].items())
           + f"   (by {s.get('split_by', 'sample')})")
     cases = s.get("cases", {})

@@ -31,7 +31,7 @@ from searcher.errors import UserError
 __all__ = ["Dataset", "GENERATOR_VERSION", "build_dataset", "data_hash", "describe_fields"]
 
 # Bump whenever generated values or stored layout change, so old caches are not reused.
-GENERATOR_VERSION = "flows-5"
+GENERATOR_VERSION = "flows-6"
 
 
 def describe_fields(task_cfg: dict) -> dict[str, Field]:
@@ -111,6 +111,10 @@ def _to_graph(task_cfg: dict, s: Sample, norm: Normaliser, counters: dict):
         import torch
 
         data.core = torch.as_tensor(s.info["core"])   # halo nodes: messages only
+        # Where each node sits in its file, so a case can be put back together from the
+        # core nodes of its patches (``searcher.train.reassemble``).
+        data.node = torch.as_tensor(s.info["nodes"], dtype=torch.long)
+        data.source = str(s.source)
     return data
 
 
@@ -190,15 +194,16 @@ def build_dataset(task_cfg: dict, cache_dir=None) -> Dataset:
 
 
 _ATTRS = ("pos", "edge_index", "edge_vec", "edge_len")
+_PATCH = ("core", "node")   # a patch's core mask and its nodes' indices in the file
 
 
 def _save_cache(path: Path, ds: Dataset) -> None:
     sets = {"graphs": ds.graphs, **{f"stress.{k}": v for k, v in ds.stress.items()}}
     arrays, labels = {}, {}
     for name, graphs in sets.items():
-        labels[name] = [[g.family, g.sample] for g in graphs]
+        labels[name] = [[g.family, g.sample, getattr(g, "source", None)] for g in graphs]
         for i, g in enumerate(graphs):
-            for attr in _ATTRS + tuple(ds.fields) + (("core",) if "core" in g else ()):
+            for attr in _ATTRS + tuple(ds.fields) + (_PATCH if "core" in g else ()):
                 arrays[f"{name}|{i}|{attr}"] = getattr(g, attr).numpy()
     meta = {"split": ds.split, "normaliser": ds.normaliser.to_dict(), "stats": ds.stats,
             "fields": {k: f.to_dict() for k, f in ds.fields.items()}, "labels": labels}
@@ -224,10 +229,11 @@ def _load_cache(path: Path, fields: dict[str, Field], digest: str) -> Dataset:
         sets = {}
         for name, labels in meta["labels"].items():
             sets[name] = [Data(**{a: torch.as_tensor(z[f"{name}|{i}|{a}"])
-                                  for a in _ATTRS + tuple(fields) + ("core",)
-                                  if a != "core" or f"{name}|{i}|core" in stored},
-                               family=fam, sample=int(num))
-                          for i, (fam, num) in enumerate(labels)]
+                                  for a in _ATTRS + tuple(fields) + _PATCH
+                                  if a not in _PATCH or f"{name}|{i}|{a}" in stored},
+                               family=fam, sample=int(num),
+                               **({"source": src} if src is not None else {}))
+                          for i, (fam, num, src) in enumerate(labels)]
     stress = {k.split(".", 1)[1]: v for k, v in sets.items() if k.startswith("stress.")}
     return Dataset(fields, sets["graphs"], meta["split"], stress,
                    Normaliser.from_dict(meta["normaliser"]), digest, meta["stats"])

@@ -10,8 +10,8 @@ import warnings
 import numpy as np
 from scipy.spatial import cKDTree
 
-__all__ = ["build_edges", "to_data", "graph_stats", "warn_long_edges", "check_cutoff",
-           "RESERVED_NAMES"]
+__all__ = ["build_edges", "to_data", "graph_stats", "LongEdges", "warn_long_edges",
+           "long_edge_counter", "long_edges", "check_cutoff", "RESERVED_NAMES"]
 
 # Attribute names a field may not take on a Data record.
 RESERVED_NAMES = frozenset({"pos", "edge_index", "edge_vec", "edge_len", "family", "sample",
@@ -95,18 +95,23 @@ def to_data(pos: np.ndarray, edge_index: np.ndarray, fields: dict[str, np.ndarra
                 family=str(family), sample=int(sample), **attrs)
 
 
+def _local(g, length: np.ndarray) -> np.ndarray:
+    """Each edge's length over the mean length arriving at its receiver (the units of
+    ``model.radial.scale: local``)."""
+    if len(length) == 0:
+        return length
+    dst = g.edge_index[1].numpy()
+    mean = np.bincount(dst, weights=length, minlength=g.num_nodes)[dst] / \
+        np.bincount(dst, minlength=g.num_nodes)[dst]
+    return np.divide(length, mean, out=np.zeros_like(length), where=mean > 0)
+
+
 def _longest(g) -> tuple[float, float]:
-    """Longest edge of a graph, absolute and over the mean length arriving at its receiver
-    (the units of ``model.radial.scale: local``)."""
+    """Longest edge of a graph, absolute and in local units (:func:`_local`)."""
     length = g.edge_len.numpy().astype(np.float64)
     if len(length) == 0:
         return 0.0, 0.0
-    dst = g.edge_index[1].numpy()
-    total = np.bincount(dst, weights=length, minlength=g.num_nodes)
-    count = np.bincount(dst, minlength=g.num_nodes)
-    mean = total[dst] / count[dst]
-    local = np.divide(length, mean, out=np.zeros_like(length), where=mean > 0)
-    return float(length.max()), float(local.max())
+    return float(length.max()), float(_local(g, length).max())
 
 
 def graph_stats(graphs) -> dict:
@@ -146,49 +151,93 @@ def graph_stats(graphs) -> dict:
             "isolated_nodes": isolated, "edge_len_max": longest, "local_len_max": local_longest}
 
 
-def warn_long_edges(graphs, cutoff: float, scale: str = "absolute") -> int:
-    """Warn once when edges of ``graphs`` are longer than the radial cutoff.
+class LongEdges:
+    """Edges longer than a radial cutoff, counted graph by graph (a graph can be dropped
+    once :meth:`add` has seen it, so a generator of patches is never held whole).
 
     The envelope takes such an edge's message to zero, so the graph rule joins nodes the
     model cannot hear (common with the neighbours rule, whose edges have no upper length).
     With ``scale: local`` lengths are counted in the mean length arriving at the receiver.
 
+    Args:
+        cutoff: the radial cutoff (in local units with ``scale: local``).
+        scale: ``model.radial.scale``.
+
+    Example:
+        >>> counter = LongEdges(0.9)
+        >>> counter.add(to_data(np.array([[0., 0, 0], [1, 0, 0]]), np.array([[0, 1], [1, 0]]),
+        ...                     {}, "c", 0))
+        >>> counter.result()
+        {'cutoff': 0.9, 'scale': 'absolute', 'edges_over': 2, 'edges': 2, 'longest': 1.0}
+    """
+
+    def __init__(self, cutoff: float, scale: str = "absolute") -> None:
+        self.cutoff, self.scale = float(cutoff), scale
+        self.over = self.edges = 0
+        self.longest = 0.0
+
+    def add(self, g) -> None:
+        length = g.edge_len.numpy().astype(np.float64)
+        if self.scale == "local":
+            length = _local(g, length)
+        self.over += int((length > self.cutoff).sum())
+        self.edges += len(length)
+        self.longest = max(self.longest, float(length.max(initial=0.0)))
+
+    def result(self) -> dict:
+        return {"cutoff": self.cutoff, "scale": self.scale, "edges_over": self.over,
+                "edges": self.edges, "longest": self.longest}
+
+    def warn(self) -> int:
+        """Warn once when any edge seen was too long; returns how many were."""
+        if self.over:
+            units = " mean local lengths" if self.scale == "local" else ""
+            warnings.warn(f"{self.over} of {self.edges} edges are longer than "
+                          f"model.radial.cutoff {self.cutoff:g}{units} (longest "
+                          f"{self.longest:.4g}); the envelope silences their messages: raise "
+                          "the cutoff or write model.radial.cutoff: from_data", stacklevel=2)
+        return self.over
+
+
+def warn_long_edges(graphs, cutoff: float, scale: str = "absolute") -> int:
+    """Warn once when edges of ``graphs`` are longer than the radial cutoff
+    (:class:`LongEdges` over every graph).
+
     Returns:
         How many edges are longer than ``cutoff``.
     """
-    count = total = 0
-    longest = 0.0
+    counter = LongEdges(cutoff, scale)
     for g in graphs:
-        length = g.edge_len.numpy().astype(np.float64)
-        if scale == "local" and len(length):
-            dst = g.edge_index[1].numpy()
-            mean = np.bincount(dst, weights=length, minlength=g.num_nodes)[dst] / \
-                np.bincount(dst, minlength=g.num_nodes)[dst]
-            length = np.divide(length, mean, out=np.zeros_like(length), where=mean > 0)
-        count += int((length > cutoff).sum())
-        total += len(length)
-        longest = max(longest, float(length.max(initial=0.0)))
-    if count:
-        units = " mean local lengths" if scale == "local" else ""
-        warnings.warn(f"{count} of {total} edges are longer than model.radial.cutoff "
-                      f"{cutoff:g}{units} (longest {longest:.4g}); the envelope silences "
-                      "their messages: raise the cutoff or write model.radial.cutoff: "
-                      "from_data", stacklevel=2)
-    return count
+        counter.add(g)
+    return counter.warn()
+
+
+def long_edge_counter(study) -> LongEdges | None:
+    """A :class:`LongEdges` at the least cutoff the study's trials can take, or None when
+    nothing is checked: ``from_data`` (it covers every edge), a derived cutoff, or a
+    searched ``model.radial.scale`` (the units would change from trial to trial)."""
+    if any(d.name == "model.radial.scale" for d in study.dimensions):
+        return None
+    cutoff = study.least("model.radial.cutoff")
+    if cutoff is None:
+        return None
+    return LongEdges(float(cutoff), study.fixed()["model"]["radial"]["scale"])
+
+
+def long_edges(study, graphs) -> dict | None:
+    """:meth:`LongEdges.result` over ``graphs`` at the cutoff of :func:`long_edge_counter`,
+    warned once; None when nothing is checked."""
+    counter = long_edge_counter(study)
+    if counter is None:
+        return None
+    for g in graphs:
+        counter.add(g)
+    counter.warn()
+    return counter.result()
 
 
 def check_cutoff(study, graphs) -> int:
-    """:func:`warn_long_edges` at the least cutoff the study's trials can take.
-
-    Nothing is checked for ``from_data`` (it covers every edge), a derived cutoff, or a
-    searched ``model.radial.scale`` (the units would change from trial to trial).
-
-    Returns:
-        How many edges are longer than that cutoff (0 when nothing is checked).
-    """
-    if any(d.name == "model.radial.scale" for d in study.dimensions):
-        return 0
-    cutoff = study.least("model.radial.cutoff")
-    if cutoff is None:
-        return 0
-    return warn_long_edges(graphs, float(cutoff), study.fixed()["model"]["radial"]["scale"])
+    """How many edges of ``graphs`` are longer than the least cutoff the study's trials can
+    take (:func:`long_edges`, warned once; 0 when nothing is checked)."""
+    found = long_edges(study, graphs)
+    return found["edges_over"] if found else 0

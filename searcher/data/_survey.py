@@ -3,8 +3,10 @@
 ``build_dataset`` keeps every graph, as training needs them.  To look at a large file cut
 into patches (``searcher data inspect``), the survey cuts it with :func:`iter_cut`, sums up
 each patch's graph (:func:`graph_stats` reads a generator) and its core cover
-(:class:`PatchCensus`), and drops it: the edges of one patch are held at a time, besides
-the file's positions and values and one cKDTree of it.  Splits and cases follow the same
+(:class:`PatchCensus`) and, given a study, its edges longer than the study's radial cutoff
+(:func:`long_edge_counter`, the check ``run`` makes on the built graphs), and drops it:
+the edges of one patch are held at a time, besides the file's positions and values and
+one cKDTree of it.  Splits and cases follow the same
 rules as ``build_dataset``; stress sets, which transform test graphs, are left to the run.
 """
 from __future__ import annotations
@@ -14,7 +16,7 @@ from types import SimpleNamespace
 from searcher.data._cases import check_hold_out, split_by_case
 from searcher.data._dataset import _case_parts, data_hash, describe_fields
 from searcher.data._files import read_samples
-from searcher.data._graphs import graph_stats, to_data
+from searcher.data._graphs import graph_stats, long_edge_counter, to_data
 from searcher.data._patches import PatchCensus, iter_cut
 from searcher.errors import UserError
 
@@ -24,9 +26,15 @@ STRESS_LATER = ("stress sets are made when the study runs (this survey holds one
                 "time)")
 
 
-def survey_dataset(task_cfg: dict) -> tuple[str, dict]:
+def survey_dataset(task_cfg: dict, study=None) -> tuple[str, dict]:
     """Data hash and stats (the keys of ``Dataset.stats``) of a file source with
     ``task.patches.size > 0``, holding one patch's edges at a time.
+
+    Args:
+        task_cfg: the resolved ``task`` mapping.
+        study: when given, ``stats["long_edges"]`` counts the edges of the graphs (kept
+            patches, as ``run`` checks them) longer than the least cutoff its trials can
+            take (:meth:`LongEdges.result`; None when nothing is checked), warned once.
 
     Raises:
         UserError: as ``build_dataset`` would (a patch without edges, an unknown hold-out
@@ -38,6 +46,7 @@ def survey_dataset(task_cfg: dict) -> tuple[str, dict]:
     check_hold_out(hold, {s.family for s in samples}, task_cfg["source"])
     census = PatchCensus({s.source: len(s.pos) for s in samples})
     kept, held, dropped = [], [], [0]
+    long = long_edge_counter(study) if study is not None else None
 
     def graphs():
         for piece in iter_cut(samples, task_cfg):
@@ -53,7 +62,10 @@ def survey_dataset(task_cfg: dict) -> tuple[str, dict]:
                 held.append(label)
                 continue
             kept.append(label)
-            yield to_data(piece.pos, piece.edge_index, {}, piece.family, piece.sample)
+            graph = to_data(piece.pos, piece.edge_index, {}, piece.family, piece.sample)
+            if long is not None:
+                long.add(graph)
+            yield graph
 
     stats_graphs = graph_stats(graphs())
     if len(kept) < 3:
@@ -71,4 +83,8 @@ def survey_dataset(task_cfg: dict) -> tuple[str, dict]:
              "held_out": sorted({s.family for s in held}), "split_by": split_by,
              "patches": patches, "cases": _case_parts(kept, split, held),
              "edges_dropped": dropped[0], "realizability_scaled": 0}
+    if study is not None:
+        stats["long_edges"] = long.result() if long is not None else None
+        if long is not None:
+            long.warn()
     return data_hash(task_cfg), stats

@@ -7,6 +7,7 @@ A finalist record as produced by the re-runs::
      "cost": {"params": ..., "madds_per_node": ...},
      "seeds": [{"seed", "status", "reason", "epochs", "best_value", "best_epoch", "error",
                 "test": {block: error}, "stress": {name: {"error", "ratio"}},
+                "cases": {case: {"part", "nodes", "files", "error"}},
                 "equivariance_error", "gate_passed", "cpu_seconds",
                 "inference_ms_per_1k_nodes", "curve", "mlflow_run_id"}]}
 
@@ -20,7 +21,7 @@ import math
 import numpy as np
 
 from searcher.report._cautions import cautions_for
-from searcher.report._finalist_measure import ERROR_DEFINITION
+from searcher.report._finalist_measure import CASE_DEFINITION, ERROR_DEFINITION
 from searcher.report._front import cost_front
 from searcher.report._pick import decide
 from searcher.report._pick import judge_against_baselines
@@ -34,7 +35,8 @@ SEED_METRICS = ("error", "best_value", "cpu_seconds", "inference_ms_per_1k_nodes
 
 
 def summarise_finalist(fin: dict, *, confidence: float = 0.95, seed: int = 0) -> dict:
-    """Add ``metrics`` (intervals over seeds), ``stress`` and ``equivariance_error``."""
+    """Add ``metrics`` (intervals over seeds), ``stress``, ``cases`` and
+    ``equivariance_error``."""
     seeds = fin["seeds"]
 
     def iv(values):
@@ -46,8 +48,12 @@ def summarise_finalist(fin: dict, *, confidence: float = 0.95, seed: int = 0) ->
     names = sorted({n for s in seeds for n in s["stress"]})
     stress = {n: {part: iv([s["stress"].get(n, {}).get(part, math.nan) for s in seeds])
                   for part in ("error", "ratio")} for n in names}
+    rows = {c: r for s in seeds for c, r in s.get("cases", {}).items()}
+    cases = {c: {"part": r["part"], "nodes": r["nodes"], "files": r["files"],
+                 "error": iv([s.get("cases", {}).get(c, {}).get("error", math.nan)
+                              for s in seeds])} for c, r in sorted(rows.items())}
     errors = [s["equivariance_error"] for s in seeds if math.isfinite(s["equivariance_error"])]
-    return {**fin, "metrics": metrics, "stress": stress,
+    return {**fin, "metrics": metrics, "stress": stress, "cases": cases,
             "equivariance_error": max(errors) if errors else math.nan}
 
 
@@ -104,6 +110,7 @@ def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: 
         "baselines": baselines,
         "references": references,
         "error_definition": ERROR_DEFINITION,
+        "case_definition": CASE_DEFINITION,
         "control": ({"label": control["label"], "origin": control["origin"],
                      "config": control["config"], "params": control["cost"].get("params"),
                      "augment": control["config"]["model"].get("augment", "none")}

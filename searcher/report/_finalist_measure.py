@@ -9,8 +9,8 @@ import math
 import time
 import warnings
 
-__all__ = ["ERROR_DEFINITION", "headline_error", "inference_ms_per_1k_nodes", "measure",
-           "retrain"]
+__all__ = ["ERROR_DEFINITION", "CASE_DEFINITION", "case_rows", "headline_error",
+           "inference_ms_per_1k_nodes", "measure", "retrain"]
 
 TIMING_REPEATS = 3
 # What the dossier's "test error" and the search's "loss" are, and how they relate.
@@ -22,7 +22,14 @@ ERROR_DEFINITION = (
     "normalised MSE, i.e. the squared error of every target component divided by its "
     "block's training scale² (the block's RMS norm over the training nodes), averaged over "
     "components.  For a one-block target whose test values have the training RMS, "
-    "normalised MSE ≈ (relative L2)² (derived).")
+    "normalised MSE ≈ (relative L2)² (derived).  On patched data (task.patches) only core "
+    "nodes count: halo nodes pass messages and carry no error.")
+CASE_DEFINITION = (
+    "Error per case: the test error over the nodes of one case (a file, or a sub-folder of "
+    "files) in the test split or held out (unseen_family).  A case cut into patches is put "
+    "back together from its patches' core nodes, keyed by each node's index in its file, so "
+    "every node counts exactly once; with task.split.by: sample a case may have only some "
+    "of its patches in the test split, and its row counts those nodes.")
 
 
 def headline_error(metrics: dict) -> float:
@@ -37,6 +44,24 @@ def headline_error(metrics: dict) -> float:
     rel = [v for k, v in metrics.items() if k.startswith("rel_l2/")
            and metrics.get("measure/" + k.split("/", 1)[1]) == "rel_l2"]
     return float(sum(rel) / len(rel)) if rel else float(metrics["loss"])
+
+
+def case_rows(model, dataset) -> dict:
+    """Error of every test and held-out case (:data:`CASE_DEFINITION`).
+
+    Returns:
+        case → ``{"part": "test" | "unseen_family", "nodes", "files", "error"}``.
+    """
+    from searcher.train import case_errors
+
+    parts = {"test": [dataset.graphs[i] for i in dataset.split["test"]],
+             "unseen_family": dataset.stress.get("unseen_family", [])}
+    out = {}
+    for part, graphs in parts.items():
+        for case, m in (case_errors(model, graphs, dataset) if graphs else {}).items():
+            out[case] = {"part": part, "nodes": m["nodes"], "files": m["files"],
+                         "error": headline_error(m)}
+    return dict(sorted(out.items()))
 
 
 def inference_ms_per_1k_nodes(model, graphs) -> float:
@@ -71,7 +96,7 @@ def measure(model, dataset, *, seed: int) -> dict:
 
     Returns:
         ``error``, ``test`` (block → error), ``stress`` (name → {error, ratio}),
-        ``equivariance_error``, ``gate_passed``, ``gate_reason``, ``cost`` and
+        ``cases`` (:func:`case_rows`), ``equivariance_error``, ``gate_passed``, ``gate_reason``, ``cost`` and
         ``inference_ms_per_1k_nodes``.
     """
     from searcher.data import graph_stats
@@ -97,6 +122,7 @@ def measure(model, dataset, *, seed: int) -> dict:
         "error": error,
         "test": {k.split("/", 1)[1]: v for k, v in test.items() if k.startswith("rel_l2/")},
         "stress": stress,
+        "cases": case_rows(model, dataset),
         "equivariance_error": float(gate.equivariance_error),
         "gate_passed": bool(gate.passed),
         "gate_reason": gate.reason,

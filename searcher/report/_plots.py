@@ -72,6 +72,30 @@ def stress_ratios(content: dict) -> bytes:
     return _png(fig)
 
 
+def case_errors(content: dict) -> bytes:
+    """Mean test error of every case (each reassembled from its core nodes) per finalist.
+
+    Cases are numbered in name order, as in the dossier's table (their names are the
+    user's, and stay off the figure)."""
+    names = sorted({n for f in content["finalists"] for n in f.get("cases", {})})
+    fig = Figure(figsize=(7.2, 3.6))
+    ax = fig.add_subplot()
+    width = 0.8 / max(len(content["finalists"]), 1)
+    for i, fin in enumerate(content["finalists"]):
+        means = [fin.get("cases", {}).get(n, {}).get("error", {}).get("mean", math.nan)
+                 for n in names]
+        ax.bar(np.arange(len(names)) + i * width, np.nan_to_num(means, nan=0.0), width,
+               color=_colour(fin, i), label=fin["label"])
+    ax.set_xticks(np.arange(len(names)) + 0.4 - width / 2,
+                  [str(k + 1) for k in range(len(names))])
+    ax.set_xlabel("case (number in the table)")
+    ax.set_ylabel("test error (relative L2)")
+    ax.set_title("Error per case (test and held-out cases)")
+    ax.legend(fontsize=8)
+    ax.grid(axis="y", alpha=0.3)
+    return _png(fig)
+
+
 def cheap_vs_full(content: dict) -> bytes:
     """Search-time validation loss against the dossier's full-fidelity test error."""
     fig = Figure(figsize=(4.8, 3.6))
@@ -144,6 +168,7 @@ PLOTS = {
     "seed-spread": ("Test error per seed", seed_spread),
     "curves": ("Validation loss while re-training", curves),
     "stress": ("Error ratios on the stress sets", stress_ratios),
+    "cases": ("Error per case", case_errors),
     "transfer": ("Search-time score against dossier score", cheap_vs_full),
     "front": ("Accuracy against cost", front),
 }

@@ -24,6 +24,7 @@ SECTION_TITLES = {
     "references": "Against references",
     "front": "Accuracy against cost",
     "stress": "Off the training distribution",
+    "cases": "Case by case",
     "symmetry-cost": "Symmetry, size and speed",
     "transfer": "Cheap scores against full training",
     "settings": "Settings that differ",
@@ -117,6 +118,20 @@ def _stress(c: dict) -> list:
             ("table", ["label"] + names, rows), ("plot", "stress")]
 
 
+def _cases(c: dict) -> list:
+    fins = c["finalists"]
+    first = {}
+    for f in fins:
+        for case, r in f.get("cases", {}).items():
+            first.setdefault(case, r)
+    rows = [[str(k + 1), case, r["part"], fmt(r["nodes"]), fmt(r["files"])]
+            + [_iv(f["cases"][case]["error"]) if case in f.get("cases", {}) else "—"
+               for f in fins] for k, (case, r) in enumerate(sorted(first.items()))]
+    return [("text", c.get("case_definition", "")),
+            ("table", ["#", "case", "part", "nodes", "files"]
+             + [f"error {f['label']}" for f in fins], rows), ("plot", "cases")]
+
+
 def _symmetry_cost(c: dict) -> list:
     rows = [[f["label"], fmt(f["equivariant"]), fmt(f["equivariance_error"]),
              fmt(f["cost"].get("params")), fmt(f["cost"].get("madds_per_node")),
@@ -207,7 +222,7 @@ def _files(c: dict) -> list:
 BUILDERS = {"choice": _choice, "before-use": lambda c: [("list", c["cautions"])],
             "contenders": _contenders, "seeds": _seeds, "head-to-head": _head_to_head,
             "references": _references, "front": _front,
-            "stress": _stress, "symmetry-cost": _symmetry_cost, "transfer": _transfer,
+            "stress": _stress, "cases": _cases, "symmetry-cost": _symmetry_cost, "transfer": _transfer,
             "settings": _settings, "origin": _origin, "files": _files}
 
 

@@ -30,8 +30,8 @@ def _fewer_probes(graph, keep_n: int, node_fields: list[str], graph_cfg: dict):
     out = graph.clone()
     pos = graph.pos[keep]
     out.pos = pos - pos.mean(dim=0, keepdim=True)
-    for name in node_fields:
-        setattr(out, name, getattr(graph, name)[keep])
+    for name in node_fields + [a for a in ("core", "node") if a in graph]:
+        setattr(out, name, getattr(graph, name)[keep])   # a patch's mask follows its nodes
     edge_index, _ = build_edges(out.pos.numpy(), graph_cfg["rule"], float(graph_cfg["radius"]),
                                 int(graph_cfg["neighbours"]), int(graph_cfg["edge_cap"]))
     out.edge_index = torch.as_tensor(edge_index, dtype=torch.long)

@@ -82,3 +82,54 @@ def test_inspect_reports_patches_and_cover(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "patches 4 from 1 file(s), 1 cut" in out and "core exactly once: yes" in out
     assert "stress sets are made when the study runs" in out
+
+
+def _line_study(tmp_path, cutoff) -> str:
+    """12 nodes on a line, 1 apart, cut into 3 patches of 4 with one halo hop."""
+    x = np.arange(12.0)
+    path = tmp_path / "line.npz"
+    np.savez(path, pos=np.stack([x, 0 * x, 0 * x], axis=1), velocity=np.ones((12, 3)),
+             pressure=x, header=np.array(json.dumps(HEADER)))
+    doc = {"study": {"name": "line"}, "task": {"source": str(path), "fields": HEADER,
+                                               "graph": {"rule": "radius", "radius": 2.5},
+                                               "split": {"hold_out": [], "stress": []},
+                                               "patches": {"size": 4, "halo": 1}},
+           "model": {"node_inputs": ["velocity"], "radial": {"cutoff": cutoff}}}
+    study = tmp_path / f"line-{cutoff}.yaml"
+    study.write_text(yaml.safe_dump(doc))
+    return str(study)
+
+
+def test_the_survey_counts_edges_longer_than_the_cutoff(tmp_path, capsys):
+    # Derived by hand: bisection gives cores {0..3}, {4..7}, {8..11}; one halo hop at radius
+    # 2.5 adds the nodes within 2.5, so the patches hold nodes 0..5, 2..9 and 6..11.  A run
+    # of m nodes 1 apart has m-1 pairs at 1 and m-2 at 2 (both directions): 18 + 26 + 18 =
+    # 62 edges, of which 8 + 12 + 8 = 28 are 2 long, over the cutoff 1.5.  Longest: 2.
+    assert main(["data", "inspect", _line_study(tmp_path, 1.5), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["stats"]["patches"]["patches"] == 3
+    assert report["stats"]["long_edges"] == {"cutoff": 1.5, "scale": "absolute",
+                                             "edges_over": 28, "edges": 62, "longest": 2.0}
+    assert report["stats"]["graphs"]["edge_len_max"] == 2.0
+    assert any("28 of 62 edges are longer than model.radial.cutoff 1.5" in w
+               for w in report["warnings"])
+    # the in-memory build of the same patches, checked as `run` checks it, agrees
+    from searcher.data import check_cutoff
+    from searcher.spec import load_study
+    study = load_study(_line_study(tmp_path, 1.5))
+    with pytest.warns(UserWarning, match="28 of 62 edges"):
+        assert check_cutoff(study, build_dataset(study.fixed()["task"]).graphs) == 28
+    # the text report; a cutoff above every edge finds none and warns nothing
+    assert main(["data", "inspect", _line_study(tmp_path, 1.5)]) == 0
+    assert ("cutoff  28 of 62 edges longer than the least model.radial.cutoff 1.5 "
+            "(longest 2)") in capsys.readouterr().out
+    assert main(["data", "inspect", _line_study(tmp_path, 2.25), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["stats"]["long_edges"]["edges_over"] == 0 and not report["warnings"]
+
+
+def test_the_survey_leaves_a_from_data_cutoff_unchecked(tmp_path, capsys):
+    assert main(["data", "inspect", _line_study(tmp_path, "from_data")]) == 0
+    assert "cutoff  not checked" in capsys.readouterr().out
+    assert main(["data", "inspect", _line_study(tmp_path, "from_data"), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["stats"]["long_edges"] is None

@@ -32,6 +32,28 @@ def test_json_holds_the_contracted_keys(dossier):
     assert saved["pick"]["reasons"] and saved["pick"]["would_change"]
 
 
+def test_every_test_and_held_out_node_is_in_one_case_row(dossier):
+    from searcher.data import build_dataset
+
+    study, content = dossier
+    ds = build_dataset(study.fixed()["task"])
+    test = [ds.graphs[i] for i in ds.split["test"]]
+    held = ds.stress["unseen_family"]
+    for fin in content["finalists"]:
+        for s in fin["seeds"]:
+            rows = s["cases"]
+            # each case's nodes counted once: the parts' node totals are the graphs' (derived)
+            assert sum(r["nodes"] for r in rows.values() if r["part"] == "test") == \
+                sum(g.num_nodes for g in test)
+            assert {c for c, r in rows.items() if r["part"] == "unseen_family"} == {"sphere"}
+            assert rows["sphere"]["nodes"] == sum(g.num_nodes for g in held)
+            assert all(r["error"] > 0 for r in rows.values())
+        assert set(fin["cases"]) == set(fin["seeds"][0]["cases"])
+        assert fin["cases"]["sphere"]["error"]["n"] == len(fin["seeds"])
+    md = (Path(content["folder"]) / "dossier.md").read_text()
+    assert "## Case by case" in md and "put back together from its patches' core nodes" in md
+
+
 def test_baselines_skill_and_verdicts_are_consistent(dossier):
     _, content = dossier
     names = [b["name"] for b in content["baselines"]]
