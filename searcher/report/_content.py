@@ -90,11 +90,11 @@ def assemble(*, study: dict, settings: dict, finalists: list[dict], provenance: 
     baselines = list(baselines or [])
     for f in summed:
         f["skill"] = skill_scores(f["metrics"]["error"]["mean"], baselines)
-    pick, duel = decide(summed, seed=seed)
-    judge_against_baselines(pick, summed, baselines)
-    control = next((f for f in summed if f["role"] == "control"), None)
     references = [summarise_finalist(f, confidence=settings["confidence"], seed=seed)
                   for f in (learned or [])]
+    pick, duel = decide(summed, seed=seed)
+    judge_against_baselines(pick, summed, baselines, references, seed=seed)
+    control = next((f for f in summed if f["role"] == "control"), None)
     content = {
         "format": FORMAT,
         "study": study,

@@ -135,16 +135,37 @@ def decide(finalists: list[dict], *, seed: int = 0) -> tuple[dict, Outperform | 
             "would_change": change}, duel
 
 
-def judge_against_baselines(pick: dict, finalists: list[dict], baselines: list[dict]) -> None:
-    """Set ``pick["beats_baselines"]`` from the chosen finalist's skill scores, and withdraw
-    the recommendation when it does not beat every reference predictor."""
+def judge_against_baselines(pick: dict, finalists: list[dict], baselines: list[dict],
+                            learned: list[dict] | None = None, *, seed: int = 0) -> None:
+    """Set ``pick["beats_baselines"]`` and withdraw or qualify the recommendation.
+
+    Fixed references (no training, no seeds) are judged by the skill score: the chosen
+    finalist must have a lower mean test error than each.  A learned reference (the
+    tensor-basis network) has seeds of its own, so beating it takes a paired-seed verdict
+    like the head-to-head one (:func:`p_outperform`: ``a`` needed); ``b`` or ``tied``
+    withdraws the recommendation, ``undecided`` leaves it provisional.  The verdicts are kept
+    in ``pick["against_learned"]``.
+    """
     chosen = next((f for f in finalists if f["label"] == pick["label"]), None)
     skill = (chosen or {}).get("skill") or {}
     if not baselines or chosen is None:
         pick["beats_baselines"] = None
         return
-    losing = [b for b in baselines if not skill.get(b["name"], -1.0) > 0]
-    pick["beats_baselines"] = not losing
+    records = {r["label"]: r for r in (learned or [])}
+    fixed = [b for b in baselines if b.get("kind") != "learned" or b.get("label") not in records]
+    losing = [b for b in fixed if not skill.get(b["name"], -1.0) > 0]
+    duels = []
+    for b in baselines:
+        rec = records.get(b.get("label")) if b.get("kind") == "learned" else None
+        if rec is None:
+            continue
+        vs = p_outperform(*paired_errors(chosen, rec), a=chosen["label"], b=b["name"],
+                          seed=seed)
+        duels.append((b, vs))
+    pick["against_learned"] = [{"name": b["name"], **vs.to_dict()} for b, vs in duels]
+    beaten = [b for b, vs in duels if vs.conclusion in ("b", "tied")]
+    open_ = [(b, vs) for b, vs in duels if vs.conclusion == "undecided"]
+    pick["beats_baselines"] = not losing and not beaten and not open_
     best = min(baselines, key=lambda b: b["test_error"])
     if losing:
         names = ", ".join(f"{b['name']} (test error {fmt(b['test_error'])})" for b in losing)
@@ -152,7 +173,24 @@ def judge_against_baselines(pick: dict, finalists: list[dict], baselines: list[d
                                f"mean test error is {fmt(chosen['metrics']['error']['mean'])}.")
         pick["decision"] = (f"Do not carry {chosen['label']} forward: a reference that needs "
                             f"no training does as well or better ({names}).")
-    else:
+    for b, vs in duels:
+        said = {"a": "beats", "b": "loses to", "tied": "ties with",
+                "undecided": "is not separated from"}[vs.conclusion]
+        pick["reasons"].append(
+            f"Against the learned reference {b['name']}, seed by seed, it {said} it: "
+            f"P = {fmt(vs.p)} over {vs.n} paired seeds, exact interval [{fmt(vs.low)}, "
+            f"{fmt(vs.high)}]" + (f"; about {vs.seeds_needed} paired seeds would settle it"
+                                  if vs.conclusion == "undecided" and vs.seeds_needed else "")
+            + ".")
+    if beaten and not losing:
+        names = ", ".join(b["name"] for b in beaten)
+        pick["decision"] = (f"Do not carry {chosen['label']} forward: the learned reference "
+                            f"{names} does as well or better over paired seeds.")
+    elif open_ and not losing:
+        names = ", ".join(b["name"] for b, _ in open_)
+        pick["decision"] += (f" Provisionally: the paired seeds do not yet show it beats "
+                             f"{names}; run more seeds before relying on that.")
+    if not losing and not beaten and not open_:
         pick["reasons"].append(
             f"It beats every reference predictor; against the strongest, {best['name']} (test "
             f"error {fmt(best['test_error'])}), its skill score is "

@@ -183,9 +183,26 @@ def _references(c: dict) -> list:
     rows = [[b["name"], b["kind"], fmt(b["test_error"])]
             + [fmt((f.get("skill") or {}).get(b["name"])) for f in fins] for b in base]
     beats = c["pick"].get("beats_baselines")
-    verdict = ("The choice beats every reference predictor." if beats else
-               "The choice does NOT beat every reference predictor; it is not recommended."
-               if beats is False else "")
+    duels = c["pick"].get("against_learned") or []
+    open_ = [d["name"] for d in duels if d["conclusion"] == "undecided"]
+    lost = [d for d in duels if d["conclusion"] in ("b", "tied")]
+    chosen = next((f for f in fins if f["label"] == c["pick"]["label"]), {})
+    skill = chosen.get("skill") or {}
+    fixed_ok = all(skill.get(b["name"], -1) > 0 for b in base if b["kind"] != "learned")
+    learned += [f"Seed by seed against {d['name']}: P = {fmt(d['p'])} over {d['n']} paired "
+                f"seeds, exact interval [{fmt(d['low'])}, {fmt(d['high'])}]: {d['conclusion']}."
+                for d in duels]
+    if beats:
+        verdict = ("The choice beats every reference predictor (learned ones by a paired-seed "
+                   "verdict).")
+    elif beats is False and open_ and not lost and fixed_ok:
+        verdict = (f"The choice is not shown to beat every reference predictor: against "
+                   f"{', '.join(open_)} the paired seeds do not decide; the recommendation is "
+                   "provisional.")
+    elif beats is False:
+        verdict = "The choice does NOT beat every reference predictor; it is not recommended."
+    else:
+        verdict = ""
     return [("text", "Test error (the dossier's error: mean relative L2 over the target's "
                      "irrep blocks) of reference predictors: those that need no training "
                      "(kind constant, closure, field) and learned ones re-trained over the "

@@ -106,3 +106,48 @@ def test_control_never_wins_while_a_finalist_is_usable():
     assert pick["label"] == "F1"
     assert any("control" in r for r in pick["reasons"])
     assert not math.isnan(fin["metrics"]["error"]["mean"])
+
+
+def _against_learned(pick_errors, ref_errors):
+    from searcher.report._pick import judge_against_baselines
+    from searcher.report._references import learned_row
+
+    fin = _finalist("F1", pick_errors, 900)
+    ref = _finalist("T", ref_errors, 700)
+    ref["config"] = {"model": {"family": "tensor_basis"}}
+    fin["skill"] = {"tensor-basis network": 1 - fin["metrics"]["error"]["mean"]
+                    / learned_row(ref)["test_error"]}
+    pick, _ = decide([fin])
+    judge_against_baselines(pick, [fin], [learned_row(ref)], [ref])
+    return pick
+
+
+def test_learned_reference_is_beaten_only_by_a_paired_verdict():
+    # 6 of 6 paired seeds won: exact Clopper-Pearson lower bound 0.025^(1/6) = 0.541 > 0.5
+    # (derived), so the pick beats the tensor-basis network (Bouthillier et al. 2021 rule).
+    pick = _against_learned([0.10] * 6, [0.20] * 6)
+    assert pick["beats_baselines"] is True
+    (duel,) = pick["against_learned"]
+    assert duel["conclusion"] == "a" and duel["p"] == 1.0 and duel["low"] > 0.5
+    assert duel["low"] == pytest.approx(0.025 ** (1 / 6))
+
+
+def test_a_lower_mean_over_too_few_seeds_is_not_a_win():
+    # A far lower mean on 3 seeds: the skill score is positive, yet no paired verdict (fewer
+    # than 5 seeds), so the recommendation stays provisional and beats_baselines is False.
+    pick = _against_learned([0.10] * 3, [0.20] * 3)
+    assert pick["beats_baselines"] is False
+    assert pick["against_learned"][0]["conclusion"] == "undecided"
+    assert "Provisionally" in pick["decision"]
+
+
+def test_a_learned_reference_that_wins_withdraws_the_pick():
+    # One big loss drags the mean over, but seed by seed the reference wins 5 of 6 (and the
+    # reverse case): the verdict follows the seeds, not the means.
+    pick = _against_learned([0.30, 0.30, 0.30, 0.30, 0.30, 0.01],
+                            [0.20, 0.20, 0.20, 0.20, 0.20, 0.20])
+    assert pick["against_learned"][0]["conclusion"] in ("b", "undecided")
+    assert pick["beats_baselines"] is False
+    lost = _against_learned([0.30] * 6, [0.20] * 6)
+    assert lost["against_learned"][0]["conclusion"] == "b"
+    assert lost["decision"].startswith("Do not carry F1 forward")
