@@ -65,3 +65,19 @@ def test_cached_models_copy_and_pickle():
     graph = random_graph(FIELDS, 10, seed=4)
     assert torch.equal(copy.deepcopy(model)(graph), out)
     assert torch.equal(pickle.loads(pickle.dumps(model))(graph), out)
+
+
+def test_a_warm_build_generates_no_e3nn_code():
+    # A later trial of an architecture the worker has built (the warm trial of the overhead
+    # figure) must not run e3nn's code generation or moment estimate at all: every lookup hits.
+    for family in ("steerable", "gated"):
+        cfg = model_config({"family": family, "hidden.multiplicity": 2, "hidden.lmax": 2,
+                            "layers": 2, "radial.count": 4, "width": 6})
+        _build_cache.clear()
+        _build_and_run(cfg)
+        cold = _build_cache.cache_info()
+        _build_and_run(cfg)
+        warm = _build_cache.cache_info()
+        assert warm["graph_misses"] == cold["graph_misses"], family
+        assert warm["moment_misses"] == cold["moment_misses"], family
+        assert warm["graph_hits"] + warm["moment_hits"] > cold["graph_hits"] + cold["moment_hits"]
