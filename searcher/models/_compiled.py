@@ -68,7 +68,9 @@ def _build():
     folder = cache_folder()
     name = f"searcher_tp_{folder.name.split('-')[1]}"
     built = folder / f"{name}.so"
-    if built.is_file():  # this machine built it before: load without asking ninja
+    # This machine built it before: load without asking ninja, unless a build is under way
+    # (torch holds a "lock" file in the folder while it compiles and links).
+    if built.is_file() and not (folder / "lock").exists():
         try:
             return _load(name, built)
         except ImportError:
