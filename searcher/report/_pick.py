@@ -135,6 +135,15 @@ def decide(finalists: list[dict], *, seed: int = 0) -> tuple[dict, Outperform | 
             "would_change": change}, duel
 
 
+def _span(fin: dict) -> str:
+    errs = [s["error"] for s in fin["seeds"] if math.isfinite(s["error"])]
+    return f"{fmt(min(errs))}–{fmt(max(errs))}" if errs else "nothing (no finite error)"
+
+
+def _failed(fin: dict) -> int:
+    return sum(s["status"] != "completed" for s in fin["seeds"])
+
+
 def judge_against_baselines(pick: dict, finalists: list[dict], baselines: list[dict],
                             learned: list[dict] | None = None, *, seed: int = 0) -> None:
     """Set ``pick["beats_baselines"]`` and withdraw or qualify the recommendation.
@@ -142,8 +151,9 @@ def judge_against_baselines(pick: dict, finalists: list[dict], baselines: list[d
     Fixed references (no training, no seeds) are judged by the skill score: the chosen
     finalist must have a lower mean test error than each.  A learned reference (the
     tensor-basis network) has seeds of its own, so beating it takes a paired-seed verdict
-    like the head-to-head one (:func:`p_outperform`: ``a`` needed); ``b`` or ``tied``
-    withdraws the recommendation, ``undecided`` leaves it provisional.  The verdicts are kept
+    like the head-to-head one (:func:`p_outperform`: ``a`` needed); ``b`` (the reference
+    clearly better) withdraws the recommendation, ``tied`` or ``undecided`` leaves it
+    provisional, with both candidates' spread over seeds in the reasons.  The verdicts are kept
     in ``pick["against_learned"]``.
     """
     chosen = next((f for f in finalists if f["label"] == pick["label"]), None)
@@ -163,8 +173,8 @@ def judge_against_baselines(pick: dict, finalists: list[dict], baselines: list[d
                           seed=seed)
         duels.append((b, vs))
     pick["against_learned"] = [{"name": b["name"], **vs.to_dict()} for b, vs in duels]
-    beaten = [b for b, vs in duels if vs.conclusion in ("b", "tied")]
-    open_ = [(b, vs) for b, vs in duels if vs.conclusion == "undecided"]
+    beaten = [b for b, vs in duels if vs.conclusion == "b"]
+    open_ = [(b, vs) for b, vs in duels if vs.conclusion in ("tied", "undecided")]
     pick["beats_baselines"] = not losing and not beaten and not open_
     best = min(baselines, key=lambda b: b["test_error"])
     if losing:
@@ -182,14 +192,22 @@ def judge_against_baselines(pick: dict, finalists: list[dict], baselines: list[d
             f"{fmt(vs.high)}]" + (f"; about {vs.seeds_needed} paired seeds would settle it"
                                   if vs.conclusion == "undecided" and vs.seeds_needed else "")
             + ".")
+        if vs.conclusion != "a":
+            rec = records[b["label"]]
+            pick["reasons"].append(
+                f"Over the same seeds {chosen['label']}'s test error spans "
+                f"{_span(chosen)} and {b['name']}'s {_span(rec)}"
+                + (f" ({_failed(rec)} of its seeds did not complete)" if _failed(rec) else "")
+                + ".")
     if beaten and not losing:
         names = ", ".join(b["name"] for b in beaten)
         pick["decision"] = (f"Do not carry {chosen['label']} forward: the learned reference "
-                            f"{names} does as well or better over paired seeds.")
+                            f"{names} is better seed by seed.")
     elif open_ and not losing:
         names = ", ".join(b["name"] for b, _ in open_)
-        pick["decision"] += (f" Provisionally: the paired seeds do not yet show it beats "
-                             f"{names}; run more seeds before relying on that.")
+        pick["decision"] += (f" Provisionally: the paired seeds do not show it beats "
+                             f"{names}; weigh the spread over seeds, or run more seeds, "
+                             "before relying on it over that reference.")
     if not losing and not beaten and not open_:
         pick["reasons"].append(
             f"It beats every reference predictor; against the strongest, {best['name']} (test "

@@ -184,8 +184,8 @@ def _references(c: dict) -> list:
             + [fmt((f.get("skill") or {}).get(b["name"])) for f in fins] for b in base]
     beats = c["pick"].get("beats_baselines")
     duels = c["pick"].get("against_learned") or []
-    open_ = [d["name"] for d in duels if d["conclusion"] == "undecided"]
-    lost = [d for d in duels if d["conclusion"] in ("b", "tied")]
+    open_ = [d["name"] for d in duels if d["conclusion"] in ("tied", "undecided")]
+    lost = [d for d in duels if d["conclusion"] == "b"]
     chosen = next((f for f in fins if f["label"] == c["pick"]["label"]), {})
     skill = chosen.get("skill") or {}
     fixed_ok = all(skill.get(b["name"], -1) > 0 for b in base if b["kind"] != "learned")
@@ -197,8 +197,8 @@ def _references(c: dict) -> list:
                    "verdict).")
     elif beats is False and open_ and not lost and fixed_ok:
         verdict = (f"The choice is not shown to beat every reference predictor: against "
-                   f"{', '.join(open_)} the paired seeds do not decide; the recommendation is "
-                   "provisional.")
+                   f"{', '.join(open_)} the paired seeds show no clear winner; the "
+                   "recommendation is provisional.")
     elif beats is False:
         verdict = "The choice does NOT beat every reference predictor; it is not recommended."
     else:

@@ -151,3 +151,13 @@ def test_a_learned_reference_that_wins_withdraws_the_pick():
     lost = _against_learned([0.30] * 6, [0.20] * 6)
     assert lost["against_learned"][0]["conclusion"] == "b"
     assert lost["decision"].startswith("Do not carry F1 forward")
+
+
+def test_a_tie_with_a_learned_reference_is_provisional_and_shows_the_spreads():
+    # 3 wins of 6 (P = 0.5, within the tie band of Bouthillier et al. 2021): not a win, not a
+    # loss; the reasons give both seed ranges, the reference's failed seed counted.
+    pick = _against_learned([0.07, 0.08, 0.07, 0.08, 0.07, 0.07],
+                            [0.14, 0.06, 0.08, 0.05, 0.19, 0.05])
+    assert pick["against_learned"][0]["conclusion"] == "tied"
+    assert pick["beats_baselines"] is False and "Provisionally" in pick["decision"]
+    assert any("0.07–0.08" in r and "0.05–0.19" in r for r in pick["reasons"])
