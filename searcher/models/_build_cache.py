@@ -38,6 +38,7 @@ from contextlib import contextmanager
 import torch
 from torch import fx
 
+from ._flags import ThreadFlag
 from ._fusable import fusable_paths
 
 __all__ = ["install", "cache_info", "clear", "lean_codegen", "unfused", "stored_plan"]
@@ -49,7 +50,7 @@ _MOMENTS: OrderedDict = OrderedDict()
 _PLANS: OrderedDict = OrderedDict()
 _COUNTS = {"graph_hits": 0, "graph_misses": 0, "moment_hits": 0, "moment_misses": 0}
 _STATE: dict = {}
-_LEAN = threading.local()
+_LEAN = ThreadFlag()
 
 
 def _remember(store: OrderedDict, key, value) -> None:
@@ -101,7 +102,7 @@ def _left_right(irreps_in1, irreps_in2, irreps_out, instructions, shared_weights
     Inside :func:`lean_codegen`, products the fused kernels will evaluate get no generated
     code at all (:func:`_unfused_module`: e3nn's Wigner 3j buffers, a forward that raises).
     """
-    if getattr(_LEAN, "active", False) and fusable_paths(instructions):
+    if _LEAN.active and fusable_paths(instructions):
         key = ("unfused", str(irreps_in1), str(irreps_in2), str(irreps_out),
                tuple(instructions), bool(specialized_code), torch.get_default_dtype())
         return _lookup(key, lambda: _unfused_module(irreps_in1, irreps_in2, irreps_out,
@@ -183,12 +184,8 @@ def unfused(module: torch.nn.Module) -> bool:
 def lean_codegen():
     """Within the block, tensor products with :func:`fusable_paths` get no generated code
     (``build_model`` with fused kernels switches every one of them to the fused kernel)."""
-    previous = getattr(_LEAN, "active", False)
-    _LEAN.active = True
-    try:
+    with _LEAN.on():
         yield
-    finally:
-        _LEAN.active = previous
 
 
 def _moment(f, n, dtype=None, device=None):

@@ -27,6 +27,8 @@ from pathlib import Path
 import torch
 from e3nn import o3
 
+from ._flags import ThreadFlag
+
 __all__ = ["CompiledProduct", "kernel_module", "kernel_status", "KERNEL_ENV", "cache_folder",
            "pytorch_kernels", "reset_kernel"]
 
@@ -37,8 +39,7 @@ COUPLING_FLOOR = 1e-14                 # 3j entries below this are rounding nois
 
 _LOCK = threading.Lock()
 _STATE: dict = {}
-_OFF = threading.local()
-_OFF.active = False
+_OFF = ThreadFlag()
 
 
 def _cpu_tag() -> str:
@@ -98,7 +99,7 @@ def _load(name: str, path: Path):
 
 def kernel_module():
     """The loaded extension, or None (then :func:`kernel_status` says why)."""
-    if getattr(_OFF, "active", False):
+    if _OFF.active:
         return None
     if "module" in _STATE:  # every product call asks: no lock once decided
         return _STATE["module"]
@@ -123,12 +124,8 @@ def kernel_status() -> str:
 def pytorch_kernels():
     """Within this block (this thread) products take the fused PyTorch path: the bench
     times both paths side by side in one process."""
-    before = getattr(_OFF, "active", False)
-    _OFF.active = True
-    try:
+    with _OFF.on():
         yield
-    finally:
-        _OFF.active = before
 
 
 def reset_kernel() -> None:
