@@ -25,17 +25,19 @@ PLANS = {
     "quick": {"sizes": (1, 2, 3), "families": ("steerable",), "epochs": 2, "repeats": 3,
               "flop_steps": 5, "scale_trials": 8, "scale_epochs": 4, "overhead_trials": 3,
               "overhead_epochs": 4, "analysis_n": 10_000, "census_n": 24, "demo": {},
-              "patch_sizes": (100_000, 300_000)},
+              "patch_sizes": (100_000, 300_000), "route_count": 1},
     "full": {"sizes": (1, 2, 3), "families": ("steerable", "gated"), "epochs": 4, "repeats": 5,
              "flop_steps": 20, "scale_trials": 24, "scale_epochs": 12, "overhead_trials": 8,
              "overhead_epochs": 6, "analysis_n": 10_000, "census_n": 60, "demo": {},
-             "patch_sizes": (100_000, 300_000, 1_000_000)},
+             "patch_sizes": (100_000, 300_000, 1_000_000), "route_count": 2},
 }
 # figure -> (comparison, goal)
 GOALS = {"loop_vs_reference": (">=", 2.0), "flop_utilisation": (">=", 0.25),
          "worker_scaling": (">=", 1.8), "overhead": ("<=", 0.05), "analysis_10k": ("<=", 30.0),
          # seconds of the one cold build per machine: reported, no goal
          "kernel_cost": (None, None),
+         # the C++ kernel against torch.compile per structure: reported, no goal
+         "kernel_routes": (None, None),
          # the census has two goals: share in SHARE_GOAL and this gap (see _census.py)
          "census": (">=", DEEP_DECADES),
          # peak resident GiB of surveying the largest patched file (data inspect)
@@ -88,6 +90,7 @@ def run_bench(*, quick: bool, cache: Path, only: tuple[str, ...] = (), plan: dic
     import torch
 
     from ._kernels import kernel_cost
+    from ._routes import kernel_routes
     from ._loop import flop_utilisation, loop_vs_reference
     from ._sweep import overhead, worker_scaling
 
@@ -110,6 +113,7 @@ def run_bench(*, quick: bool, cache: Path, only: tuple[str, ...] = (), plan: dic
                                      epochs=plan["overhead_epochs"], demo=plan["demo"]),
         "kernel_cost": lambda: kernel_cost(dataset, base, sizes=plan["sizes"],
                                            families=plan["families"]),
+        "kernel_routes": lambda: kernel_routes(dataset, base, count=plan["route_count"]),
         "analysis_10k": lambda: {"n": plan["analysis_n"], "seconds": _analysis(plan)},
         "pruners": lambda: bench_pruners(quick),
         "census": lambda: census(_loop_root() / "studies" / "demo.yaml", int(plan["census_n"])),
@@ -155,6 +159,12 @@ def _headline(name: str, value) -> tuple[str, float | None]:
                  f"e3nn {r['fraction_e3nn']:.3f})" for r in value]
         return ", ".join(parts) + f"; {value[0]['edges']} edges a batch", \
             max(r["fraction"] for r in value)
+    if name == "kernel_routes":
+        parts = [f"{r['structure']}: fallback {r['fallback_us']:.0f} us, compiled "
+                 f"{r.get('compiled_us', float('nan')):.0f} us, inductor {r['inductor_us']:.0f} "
+                 f"us after a first call of {r['inductor_first_call_s']:.1f} s cold, "
+                 f"{r['inductor_warm_first_call_s']:.1f} s warm" for r in value["rows"]]
+        return "; ".join(parts) + f" ({value['edges']} edges)", None
     if name == "kernel_cost":
         if "build_s" not in value:
             return f"kernel: {value['status']}", None

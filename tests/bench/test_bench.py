@@ -102,3 +102,17 @@ def test_sweep_figures(tmp_path):
     table = format_table(record)
     assert all(name in table for name in ("worker_scaling", "overhead"))
     assert set(GOALS) >= set(record["figures"])
+
+
+@pytest.mark.slow
+def test_kernel_routes_figure(demo):
+    # One structure, both processes (cold and warm inductor cache); the times are positive
+    # and the warm first call skips inductor's compile, so it is shorter (derived: the cache
+    # holds the compiled code).
+    from searcher.bench._routes import kernel_routes
+
+    dataset, base = demo
+    fig = kernel_routes(dataset, base, count=1)
+    (row,) = fig["rows"]
+    assert fig["edges"] > 0 and row["fallback_us"] > 0 and row["inductor_us"] > 0
+    assert row["inductor_warm_first_call_s"] < row["inductor_first_call_s"]
