@@ -42,8 +42,17 @@ class Aggregate(torch.nn.Module):
     def forward(self, messages: torch.Tensor, ctx: EdgeContext) -> torch.Tensor:
         if self.mode == "mean":
             return scatter(messages, ctx.dst, 0, dim_size=ctx.num_nodes, reduce="mean")
-        out = scatter(messages, ctx.dst, 0, dim_size=ctx.num_nodes, reduce="sum")
-        return out / self.avg_degree if self.mode == "degree" else out
+        return self.finish(scatter(messages, ctx.dst, 0, dim_size=ctx.num_nodes,
+                                   reduce="sum"), ctx)
+
+    def finish(self, summed: torch.Tensor, ctx: EdgeContext) -> torch.Tensor:
+        """The aggregate from the per-node sums of the messages (a fused message pass gives
+        those sums directly): divided by the in-degree (at least 1) for ``mean``, by the
+        average degree for ``degree``."""
+        if self.mode == "mean":
+            count = torch.bincount(ctx.dst, minlength=ctx.num_nodes).clamp_(min=1)
+            return summed / count.to(summed.dtype)[:, None]
+        return summed / self.avg_degree if self.mode == "degree" else summed
 
 
 class InstanceNorm(torch.nn.Module):

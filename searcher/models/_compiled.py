@@ -180,6 +180,38 @@ class CompiledProduct:
         return _Product.apply(x1, x2, weight, self, module)
 
 
+    def scatter(self, module, x1: torch.Tensor, x2: torch.Tensor, weight: torch.Tensor,
+                src: torch.Tensor, dst: torch.Tensor, n_out: int) -> torch.Tensor:
+        """``out[dst[e]] += TP(x1[src[e]], x2[e], weight[e])`` in one pass (per-edge weights
+        only): ``x1 [N, dim1]``, ``x2 [E, dim2]``, ``weight [E, W]`` → ``[n_out, dim_out]``."""
+        if self.shared:
+            raise ValueError("the gathered, summed product takes per-edge weights only")
+        return _Scatter.apply(x1, x2, weight, src, dst, int(n_out), self, module)
+
+
+class _Scatter(torch.autograd.Function):
+    @staticmethod
+    def forward(ctx, x1, x2, weight, src, dst, n_out, plan, module):
+        alpha, nzc = plan.constants(x1.dtype)
+        ctx.plan, ctx.module = plan, module
+        ctx.save_for_backward(x1, x2, weight, src, dst)
+        return module.tp_scatter_forward(x1, x2, weight, src, dst, n_out, plan.paths, alpha,
+                                         plan.nzi, nzc, plan.dim_out)
+
+    @staticmethod
+    @torch.autograd.function.once_differentiable
+    def backward(ctx, grad):
+        x1, x2, weight, src, dst = ctx.saved_tensors
+        plan = ctx.plan
+        alpha, nzc = plan.constants(x1.dtype)
+        need = ctx.needs_input_grad
+        g1, g2, gw = ctx.module.tp_scatter_backward(
+            grad.contiguous(), x1, x2, weight, src, dst, plan.paths, alpha, plan.nzi, nzc,
+            need[0], need[1], need[2])
+        return (g1 if need[0] else None, g2 if need[1] else None, gw if need[2] else None,
+                None, None, None, None, None)
+
+
 class _Product(torch.autograd.Function):
     @staticmethod
     def forward(ctx, x1, x2, weight, plan, module):

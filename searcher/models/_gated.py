@@ -13,6 +13,7 @@ from e3nn import o3
 from ._base import FAMILIES
 from ._blocks import per_edge
 from ._equivariant import EquivariantModel
+from ._fused import gathered_sum
 from ._geometry import EdgeContext
 from ._irreps import make_gate
 from ._registry import activation
@@ -56,8 +57,13 @@ class GatedInteraction(torch.nn.Module):
 
     def forward(self, h: torch.Tensor, ctx: EdgeContext) -> torch.Tensor:
         w = self.radial(torch.cat([ctx.edge_rbf, ctx.edge_jumps], -1))
-        m = self.tp(self.linear_in(h)[ctx.src], ctx.edge_attr, w)
-        out = self.linear_out(self.aggregate(m, ctx)) + self.self_connection(h, ctx.node_attr)
+        x = self.linear_in(h)
+        # One compiled pass gathers the senders, multiplies and sums at the receivers where it
+        # applies; otherwise per-edge messages are formed and aggregated.
+        summed = gathered_sum(self.tp, x, ctx.edge_attr, w, ctx.src, ctx.dst, ctx.num_nodes)
+        agg = (self.aggregate(self.tp(x[ctx.src], ctx.edge_attr, w), ctx) if summed is None
+               else self.aggregate.finish(summed, ctx))
+        out = self.linear_out(agg) + self.self_connection(h, ctx.node_attr)
         return self.gate(out)
 
 

@@ -138,15 +138,16 @@ template <typename T>
 void forward_impl(const std::vector<Path>& paths, const std::vector<char>& direct,
                   const T* alpha, const int64_t* nzi,
                   const T* nzc, const T* x1, const T* x2, const T* w, bool shared, int64_t z_n,
-                  int64_t d1n, int64_t d2n, int64_t don, int64_t wn, T* out) {
+                  int64_t d1n, int64_t d2n, int64_t don, int64_t wn, T* out,
+                  const int64_t* src = nullptr, const int64_t* dst = nullptr) {
   const int64_t tile = tile_size(paths);
   std::vector<T> acc(tile), mik(tile);
   T t[kMaxDim];
   for (int64_t z = 0; z < z_n; ++z) {
-    const T* a = x1 + z * d1n;
+    const T* a = x1 + (src ? src[z] : z) * d1n;
     const T* b = x2 + z * d2n;
     const T* wz = shared ? w : w + z * wn;
-    T* o = out + z * don;
+    T* o = out + (dst ? dst[z] : z) * don;
     for (size_t q = 0; q < paths.size(); ++q) {
       if (!direct[q]) continue;
       const Path& p = paths[q];
@@ -185,16 +186,17 @@ void backward_impl(const std::vector<Path>& paths, const std::vector<char>& dire
                    const T* alpha, const int64_t* nzi,
                    const T* nzc, const T* x1, const T* x2, const T* w, bool shared,
                    int64_t z_n, int64_t d1n, int64_t d2n, int64_t don, int64_t wn,
-                   const T* g, T* g1, T* g2, T* gw) {
+                   const T* g, T* g1, T* g2, T* gw,
+                   const int64_t* src = nullptr, const int64_t* dst = nullptr) {
   const int64_t tile = tile_size(paths);
   std::vector<T> gk(tile), mik(tile), pik(tile);
   T t[kMaxDim], gt[kMaxDim];
   for (int64_t z = 0; z < z_n; ++z) {
-    const T* a = x1 + z * d1n;
+    const T* a = x1 + (src ? src[z] : z) * d1n;
     const T* b = x2 + z * d2n;
     const T* wz = shared ? w : w + z * wn;
-    const T* gz = g + z * don;
-    T* ga = g1 ? g1 + z * d1n : nullptr;
+    const T* gz = g + (dst ? dst[z] : z) * don;
+    T* ga = g1 ? g1 + (src ? src[z] : z) * d1n : nullptr;
     T* gb = g2 ? g2 + z * d2n : nullptr;
     T* gwz = gw ? (shared ? gw : gw + z * wn) : nullptr;
     for (size_t q = 0; q < paths.size(); ++q) {
@@ -606,7 +608,81 @@ std::vector<torch::Tensor> tp_backward(torch::Tensor g, torch::Tensor x1, torch:
   return {g1, g2, gw};
 }
 
+// The gated family's message step in one pass: out[dst[e]] += TP(x1[src[e]], x2[e], w[e])
+// (a sum over each node's incoming edges), and its backward, for products without
+// shared-weight uvw blocks (those take the unfused route in Python).  No per-edge copy of
+// x1 and no per-edge message is written; the sums run edge by edge in order, so results
+// are deterministic.
+void check_edges(const torch::Tensor& x1, const torch::Tensor& x2, const torch::Tensor& src,
+                 const torch::Tensor& dst, int64_t n_out) {
+  TORCH_CHECK(src.dtype() == torch::kInt64 && dst.dtype() == torch::kInt64 &&
+                  src.is_contiguous() && dst.is_contiguous() && src.dim() == 1 &&
+                  dst.dim() == 1 && src.size(0) == x2.size(0) && dst.size(0) == x2.size(0),
+              "src and dst must be int64 [E], one per row of x2");
+  if (x2.size(0) > 0) {
+    TORCH_CHECK(src.min().item<int64_t>() >= 0 && src.max().item<int64_t>() < x1.size(0),
+                "src indexes past x1");
+    TORCH_CHECK(dst.min().item<int64_t>() >= 0 && dst.max().item<int64_t>() < n_out,
+                "dst indexes past the output");
+  }
+}
+
+torch::Tensor tp_scatter_forward(torch::Tensor x1, torch::Tensor x2, torch::Tensor w,
+                                 torch::Tensor src, torch::Tensor dst, int64_t n_out,
+                                 torch::Tensor paths, torch::Tensor alpha, torch::Tensor nzi,
+                                 torch::Tensor nzc, int64_t dim_out) {
+  TORCH_CHECK(x1.dim() == 2 && x2.dim() == 2 && w.dim() == 2 && w.size(0) == x2.size(0),
+              "x1 [N, D1], x2 [E, D2] and per-edge weights [E, W] expected");
+  TORCH_CHECK(x1.is_contiguous() && x2.is_contiguous() && w.is_contiguous(),
+              "inputs must be contiguous");
+  TORCH_CHECK(x1.dtype() == x2.dtype() && x1.dtype() == w.dtype() &&
+                  x1.dtype() == alpha.dtype() && x1.dtype() == nzc.dtype(),
+              "every floating input must share one dtype");
+  check_edges(x1, x2, src, dst, n_out);
+  auto table = read_paths(paths);
+  Plan plan = make_plan(table, false);
+  auto out = torch::zeros({n_out, dim_out}, x1.options());
+  AT_DISPATCH_FLOATING_TYPES(x1.scalar_type(), "tp_scatter_forward", [&] {
+    forward_impl<scalar_t>(table, plan.direct, alpha.data_ptr<scalar_t>(),
+                           nzi.data_ptr<int64_t>(), nzc.data_ptr<scalar_t>(),
+                           x1.data_ptr<scalar_t>(), x2.data_ptr<scalar_t>(),
+                           w.data_ptr<scalar_t>(), false, x2.size(0), x1.size(1), x2.size(1),
+                           dim_out, w.size(1), out.data_ptr<scalar_t>(),
+                           src.data_ptr<int64_t>(), dst.data_ptr<int64_t>());
+  });
+  return out;
+}
+
+std::vector<torch::Tensor> tp_scatter_backward(torch::Tensor g, torch::Tensor x1,
+                                               torch::Tensor x2, torch::Tensor w,
+                                               torch::Tensor src, torch::Tensor dst,
+                                               torch::Tensor paths, torch::Tensor alpha,
+                                               torch::Tensor nzi, torch::Tensor nzc,
+                                               bool need1, bool need2, bool needw) {
+  TORCH_CHECK(g.is_contiguous() && g.dtype() == x1.dtype(), "bad output gradient");
+  check_edges(x1, x2, src, dst, g.size(0));
+  auto table = read_paths(paths);
+  Plan plan = make_plan(table, false);
+  auto g1 = need1 ? torch::zeros_like(x1) : torch::Tensor();
+  auto g2 = need2 ? torch::zeros_like(x2) : torch::Tensor();
+  auto gw = needw ? torch::zeros_like(w) : torch::Tensor();
+  AT_DISPATCH_FLOATING_TYPES(x1.scalar_type(), "tp_scatter_backward", [&] {
+    backward_impl<scalar_t>(table, plan.direct, alpha.data_ptr<scalar_t>(),
+                            nzi.data_ptr<int64_t>(), nzc.data_ptr<scalar_t>(),
+                            x1.data_ptr<scalar_t>(), x2.data_ptr<scalar_t>(),
+                            w.data_ptr<scalar_t>(), false, x2.size(0), x1.size(1), x2.size(1),
+                            g.size(1), w.size(1), g.data_ptr<scalar_t>(),
+                            need1 ? g1.data_ptr<scalar_t>() : nullptr,
+                            need2 ? g2.data_ptr<scalar_t>() : nullptr,
+                            needw ? gw.data_ptr<scalar_t>() : nullptr,
+                            src.data_ptr<int64_t>(), dst.data_ptr<int64_t>());
+  });
+  return {g1, g2, gw};
+}
+
 PYBIND11_MODULE(TORCH_EXTENSION_NAME, m) {
   m.def("tp_forward", &tp_forward, "weighted uvw/uvu tensor product, forward");
   m.def("tp_backward", &tp_backward, "weighted uvw/uvu tensor product, backward");
+  m.def("tp_scatter_forward", &tp_scatter_forward, "gathered product summed at receivers");
+  m.def("tp_scatter_backward", &tp_scatter_backward, "its backward");
 }
