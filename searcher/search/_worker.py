@@ -27,10 +27,11 @@ from typing import Callable
 
 from searcher.errors import UserError
 
-__all__ = ["WorkerArgs", "worker_loop", "worker_process", "load_for_run"]
+__all__ = ["WorkerArgs", "TurnLock", "worker_loop", "worker_process", "load_for_run"]
 
 log = logging.getLogger("searcher")
 _LOCK_SECONDS = 60.0
+_LOCK_RETRY_SECONDS = 2.0   # after a lock timeout: its holder most likely died
 
 
 @dataclass(frozen=True)
@@ -114,6 +115,27 @@ def _quiet_heartbeat_errors() -> None:
     threading.excepthook = hook
 
 
+class TurnLock:
+    """The workers' budget lock, with a patience that shrinks once a holder is taken for dead.
+
+    A worker killed while holding the lock never releases it: after ``_LOCK_SECONDS`` the
+    others go on without it (at worst one trial beyond the budget).  From then on the holder
+    is taken for dead and each turn waits ``_LOCK_RETRY_SECONDS``, not the full time again
+    on every trial (which made a sweep with a dead holder crawl).
+    """
+
+    def __init__(self, lock) -> None:
+        self.lock = lock
+        self.patience = _LOCK_SECONDS
+
+    def acquire(self) -> bool:
+        """True when the lock was taken (release it then), False after the patience."""
+        got = bool(self.lock.acquire(timeout=self.patience))
+        if not got:
+            self.patience = _LOCK_RETRY_SECONDS
+        return got
+
+
 def _next_step(opt, budget: int) -> str:
     """``run`` a trial, ``wait`` for running ones (one may be lost and need a retry), or
     ``done``."""
@@ -179,11 +201,10 @@ def worker_loop(args: WorkerArgs, lock, should_stop: Callable[[], bool]) -> int:
     runner = TrialRunner(study, dataset, tracker, stop, args.index, on_start=release,
                          attrs={"sampler_seed": seed})
     ran = 0
+    turn = TurnLock(lock)
     while not stop():
         step = "run"
-        # a worker killed while holding the lock never releases it: after a while the
-        # others go on without it (at worst one trial beyond the budget)
-        held[0] = lock.acquire(timeout=_LOCK_SECONDS)
+        held[0] = turn.acquire()
         try:
             if fleet is not None:
                 fleet.acquire()
