@@ -1,5 +1,9 @@
 // One-pass CPU kernels for e3nn's weighted ``uvw`` / ``uvu`` tensor products.
 //
+// Longer than our 400-line habit on purpose: torch builds one extension from one source
+// here, and the per-row loops, the GEMM blocks and the gathered pass share its tables and
+// helpers.
+//
 // A product is described by tables (built in searcher/models/_compiled.py, one set per
 // product structure), so this file compiles once per machine for every structure:
 //
