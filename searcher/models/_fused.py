@@ -281,10 +281,7 @@ class _FusedMixin:
             return self._fused(x, y, weight)
         plan = self._fused
         lead, x1, x2, weight = plan.rows(x, y, weight)
-        compiled = self.__dict__.get("_compiled")
-        if compiled is None:
-            compiled = self._compiled = _compiled_plan(self)
-        out = compiled(kernel, x1.contiguous(), x2.contiguous(), weight.contiguous())
+        out = _compiled_plan(self)(kernel, x1.contiguous(), x2.contiguous(), weight.contiguous())
         return out.reshape(*lead, plan.dim_out)
 
 
@@ -299,10 +296,7 @@ def gathered_sum(tp, x: torch.Tensor, edge_attr: torch.Tensor, weight: torch.Ten
     kernel = kernel_module()
     if kernel is None or x.dim() != 2 or edge_attr.dim() != 2 or weight.dim() != 2:
         return None
-    compiled = tp.__dict__.get("_compiled")
-    if compiled is None:
-        compiled = tp._compiled = _compiled_plan(tp)
-    return compiled.scatter(kernel, x.contiguous(), edge_attr.contiguous(),
+    return _compiled_plan(tp).scatter(kernel, x.contiguous(), edge_attr.contiguous(),
                             weight.contiguous(), src.contiguous(), dst.contiguous(), num_nodes)
 
 
@@ -353,4 +347,9 @@ def _plan(tp: o3.TensorProduct) -> FusedProduct:
 
 
 def _compiled_plan(tp: o3.TensorProduct) -> CompiledProduct:
-    return stored_plan(("compiled",) + _key(tp), lambda: CompiledProduct(tp))
+    """The product's kernel tables: kept on the module after the first call (the store is
+    keyed by structure, so every module of one structure shares them)."""
+    plan = tp.__dict__.get("_compiled")
+    if plan is None:
+        plan = tp._compiled = stored_plan(("compiled",) + _key(tp), lambda: CompiledProduct(tp))
+    return plan
