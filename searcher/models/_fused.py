@@ -27,7 +27,8 @@ buffers, so state dicts are e3nn's own and load into either kernel.
 
 :func:`fuse_products` switches every supported product (and every shared, bias-free
 ``o3.Linear``, :class:`FusedLinear`) of a model in place (its class becomes
-a subclass that overrides ``forward`` only); unsupported modes (``uuu``, ``uvv``, ...),
+a subclass that overrides ``forward`` only), and every ``nn.Gate``
+(:mod:`._fused_gate`); unsupported modes (``uuu``, ``uvv``, ...),
 products without weights on a path and linears with biases or external weights keep e3nn's
 code.
 """
@@ -42,6 +43,7 @@ from e3nn import o3
 from ._build_cache import stored_plan
 from ._compiled import CompiledProduct, kernel_module
 from ._fusable import fusable_paths
+from ._fused_gate import fuse_gate
 
 __all__ = ["FusedProduct", "FusedLinear", "fuse_products", "fusable", "fusable_paths",
            "gathered_sum"]
@@ -178,8 +180,10 @@ class FusedProduct:
     def rows(self, x1: torch.Tensor, x2: torch.Tensor, weight: torch.Tensor):
         """``(lead shape, x1 [Z, dim1], x2 [Z, dim2], weight [W] or [Z, W])`` after
         broadcasting the leading dimensions, as e3nn does."""
-        lead = torch.broadcast_shapes(x1.shape[:-1], x2.shape[:-1],
-                                      () if self.shared else weight.shape[:-1])
+        a, b = x1.shape[:-1], x2.shape[:-1]
+        if x1.dim() == 2 and a == b and (self.shared or weight.shape[:-1] == a):
+            return a, x1, x2, weight  # the common case, without broadcast_shapes' 40 us
+        lead = torch.broadcast_shapes(a, b, () if self.shared else weight.shape[:-1])
         x1 = x1.expand(*lead, self.dim1).reshape(-1, self.dim1)
         x2 = x2.expand(*lead, self.dim2).reshape(-1, self.dim2)
         if not self.shared:
@@ -313,8 +317,9 @@ _FUSED_CLASSES = {o3.TensorProduct: FusedTensorProduct,
 
 
 def fuse_products(model: torch.nn.Module) -> int:
-    """Switch every :func:`fusable` tensor product of ``model`` to the fused kernel, and
-    every shared, bias-free ``o3.Linear`` to :class:`FusedLinear`, in place.
+    """Switch every :func:`fusable` tensor product of ``model`` to the fused kernel, every
+    shared, bias-free ``o3.Linear`` to :class:`FusedLinear` and every e3nn gate to
+    :class:`~searcher.models._fused_gate.FusedGate`, in place.
 
     Parameters, buffers and state-dict keys are unchanged, so a state dict moves freely
     between a fused model and e3nn's; the plans are kept per structure.
@@ -327,6 +332,8 @@ def fuse_products(model: torch.nn.Module) -> int:
         if fusable(module):
             module._fused = _plan(module)
             module.__class__ = _FUSED_CLASSES[type(module)]
+            count += 1
+        elif fuse_gate(module):
             count += 1
         elif _linear_fusable(module):
             plan = _linear_plan(module)

