@@ -29,11 +29,9 @@ print(json.dumps({"seconds": time.perf_counter() - start, "status": status}))
 
 
 def _child(cache: str) -> dict:
-    from ._loop import ROOT
+    from searcher.models._compiled import child_env
 
-    env = {**os.environ, "SEARCHER_KERNEL_CACHE": cache, "PYTHONPATH": str(ROOT),
-           "OMP_NUM_THREADS": "1"}
-    env.pop("SEARCHER_KERNELS", None)
+    env = child_env(SEARCHER_KERNEL_CACHE=cache)
     # Imports of torch/e3nn are inside the timed span of both runs alike; the import alone
     # is timed separately so the build's own share can be read off.
     proc = subprocess.run([sys.executable, "-c", _CHILD], capture_output=True, text=True,

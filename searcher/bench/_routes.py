@@ -11,7 +11,6 @@ C++ kernel's one build per machine.
 from __future__ import annotations
 
 import json
-import os
 import subprocess
 import sys
 import tempfile
@@ -90,14 +89,12 @@ def _structures(dataset, base: dict) -> tuple[list[tuple[str, str, str]], int]:
 def kernel_routes(dataset, base: dict, *, count: int = 2) -> dict:
     """Per structure: fwd+bwd microseconds of each route and inductor's first-call seconds,
     cold (empty inductor cache) and warm (a second process on that cache)."""
-    from ._loop import ROOT
+    from searcher.models._compiled import child_env
 
     structures, edges = _structures(dataset, base)
     spec = json.dumps({"edges": edges, "count": int(count), "structures": structures})
     with tempfile.TemporaryDirectory() as cache:
-        env = {**os.environ, "TORCHINDUCTOR_CACHE_DIR": cache, "PYTHONPATH": str(ROOT),
-               "OMP_NUM_THREADS": "1"}
-        env.pop("SEARCHER_KERNELS", None)
+        env = child_env(TORCHINDUCTOR_CACHE_DIR=cache)
         runs = []
         for _ in range(2):
             proc = subprocess.run([sys.executable, "-c", _CHILD, spec], capture_output=True,

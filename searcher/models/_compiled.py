@@ -27,12 +27,14 @@ from pathlib import Path
 import torch
 from e3nn import o3
 
+from searcher.errors import UserError
+from searcher.options import KERNEL_ENV, kernel_choice
+
 from ._flags import ThreadFlag
 
 __all__ = ["CompiledProduct", "kernel_module", "kernel_status", "KERNEL_ENV", "cache_folder",
-           "pytorch_kernels", "reset_kernel"]
+           "pytorch_kernels", "reset_kernel", "child_env"]
 
-KERNEL_ENV = "SEARCHER_KERNELS"        # "pytorch" turns the compiled kernel off
 CACHE_ENV = "SEARCHER_KERNEL_CACHE"    # where builds are kept (default ~/.cache/searcher)
 SOURCE = Path(__file__).with_name("_kernel.cpp")
 COUPLING_FLOOR = 1e-14                 # 3j entries below this are rounding noise of zeros
@@ -61,7 +63,11 @@ def cache_folder() -> Path:
 
 
 def _build():
-    if os.environ.get(KERNEL_ENV, "").strip().lower() == "pytorch":
+    try:
+        choice = kernel_choice()
+    except UserError as err:  # the CLI refuses it first; a library caller gets the line
+        raise RuntimeError(str(err)) from None
+    if choice == "pytorch":
         raise RuntimeError(f"{KERNEL_ENV}=pytorch")
     cxx = os.environ.get("CXX") or "c++"
     if shutil.which(cxx) is None:
@@ -126,6 +132,16 @@ def pytorch_kernels():
     times both paths side by side in one process."""
     with _OFF.on():
         yield
+
+
+def child_env(**changes: str) -> dict:
+    """The environment for a child process that picks its kernel route afresh (the bench's
+    and the tests' fresh processes): ``SEARCHER_KERNELS`` dropped, this package's folder on
+    ``PYTHONPATH``, one torch thread, then ``changes``."""
+    env = {k: v for k, v in os.environ.items() if k != KERNEL_ENV}
+    env.update({"PYTHONPATH": str(Path(__file__).resolve().parents[2]),
+                "OMP_NUM_THREADS": "1", **changes})
+    return env
 
 
 def reset_kernel() -> None:

@@ -617,12 +617,20 @@ std::vector<torch::Tensor> tp_backward(torch::Tensor g, torch::Tensor x1, torch:
 // shared-weight uvw blocks (those take the unfused route in Python).  No per-edge copy of
 // x1 and no per-edge message is written; the sums run edge by edge in order, so results
 // are deterministic.
-void check_edges(const torch::Tensor& x1, const torch::Tensor& x2, const torch::Tensor& src,
-                 const torch::Tensor& dst, int64_t n_out) {
+void check_edge_shapes(const torch::Tensor& x2, const torch::Tensor& src,
+                       const torch::Tensor& dst) {
   TORCH_CHECK(src.dtype() == torch::kInt64 && dst.dtype() == torch::kInt64 &&
                   src.is_contiguous() && dst.is_contiguous() && src.dim() == 1 &&
                   dst.dim() == 1 && src.size(0) == x2.size(0) && dst.size(0) == x2.size(0),
               "src and dst must be int64 [E], one per row of x2");
+}
+
+// The forward also checks the index ranges (a min and a max of each); the backward gets the
+// same tensors back from autograd, which refuses ones changed in place since, so it checks
+// shapes only.
+void check_edges(const torch::Tensor& x1, const torch::Tensor& x2, const torch::Tensor& src,
+                 const torch::Tensor& dst, int64_t n_out) {
+  check_edge_shapes(x2, src, dst);
   if (x2.size(0) > 0) {
     TORCH_CHECK(src.min().item<int64_t>() >= 0 && src.max().item<int64_t>() < x1.size(0),
                 "src indexes past x1");
@@ -664,7 +672,7 @@ std::vector<torch::Tensor> tp_scatter_backward(torch::Tensor g, torch::Tensor x1
                                                torch::Tensor nzi, torch::Tensor nzc,
                                                bool need1, bool need2, bool needw) {
   TORCH_CHECK(g.is_contiguous() && g.dtype() == x1.dtype(), "bad output gradient");
-  check_edges(x1, x2, src, dst, g.size(0));
+  check_edge_shapes(x2, src, dst);
   auto table = read_paths(paths);
   Plan plan = make_plan(table, false);
   auto g1 = need1 ? torch::zeros_like(x1) : torch::Tensor();

@@ -210,3 +210,22 @@ def test_reading_a_mistyped_sqlite_storage_creates_nothing(tmp_path, capsys):
     assert main(["analyze", str(study), "--storage", f"sqlite:///{missing}"]) == 2
     err = capsys.readouterr().err
     assert "Traceback" not in err and str(missing) in err and not missing.exists()
+
+
+@pytest.mark.parametrize("value", ["fast", "cuda", "e3nn"])
+def test_unknown_kernel_route_in_the_environment_exits_2(monkeypatch, capsys, value):
+    # SEARCHER_KERNELS takes "compiled" or "pytorch"; a typo must not quietly pick a route.
+    monkeypatch.setenv("SEARCHER_KERNELS", value)
+    assert main(["schema"]) == 2
+    err = capsys.readouterr().err
+    assert "SEARCHER_KERNELS" in err and "compiled, pytorch" in err and repr(value) in err
+    assert "Traceback" not in err
+
+
+@pytest.mark.parametrize("value, route", [("", "compiled"), ("compiled", "compiled"),
+                                          (" PyTorch ", "pytorch")])
+def test_known_kernel_routes_are_read_from_the_environment(value, route):
+    from searcher.options import kernel_choice
+
+    assert kernel_choice({"SEARCHER_KERNELS": value}) == route
+    assert kernel_choice({}) == "compiled"

@@ -7,17 +7,15 @@ import shutil
 import subprocess
 import sys
 import textwrap
-from pathlib import Path
 
 import pytest
 import torch
 from e3nn import o3
 
 from searcher.models import default_dtype
-from searcher.models._compiled import kernel_module, kernel_status, pytorch_kernels
+from searcher.models._compiled import child_env, kernel_module, kernel_status, pytorch_kernels
 from tests.models.test_fused import CASES, _compare, _uvu
 
-ROOT = Path(__file__).resolve().parents[2]
 HAS_COMPILER = shutil.which(os.environ.get("CXX") or "c++") is not None
 
 EXTRA = {
@@ -99,9 +97,7 @@ _CHILD = textwrap.dedent("""
 
 
 def _child(tmp_path, **env_changes):
-    env = {k: v for k, v in os.environ.items() if k != "SEARCHER_KERNELS"}
-    env.update({"OMP_NUM_THREADS": "1", "PYTHONPATH": str(ROOT),
-                "SEARCHER_KERNEL_CACHE": str(tmp_path / "kernels"), **env_changes})
+    env = child_env(SEARCHER_KERNEL_CACHE=str(tmp_path / "kernels"), **env_changes)
     proc = subprocess.run([sys.executable, "-c", _CHILD], capture_output=True, text=True,
                           env=env, cwd=tmp_path, timeout=600)
     assert proc.returncode == 0, proc.stderr[-3000:]
