@@ -11,6 +11,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from searcher.models import build_model, default_dtype, random_graph
+from searcher.models._gate import exact_float64
 from searcher.models._fused import FusedLinear, FusedProduct, fuse_products, fusable
 from searcher.testing import make_fields, model_config
 
@@ -213,3 +214,22 @@ def test_products_built_for_the_fused_kernel_carry_no_e3nn_code():
         with pytest.raises(RuntimeError, match="fused kernel"):
             module(x1, x2, tp.weight)
     assert tp(x1, x2).shape == (3, tp.irreps_out.dim)
+
+
+@pytest.mark.parametrize("family", ["steerable", "gated"])
+def test_fused_model_run_in_float32_then_converted_stays_exact(family):
+    # The trial's order of events: a model runs in float32 (its kernels keep float32 casts of
+    # their constants), then the equivariance gate converts it to float64.  The float64
+    # evaluation must use the float64 originals: equal to e3nn's code in float64 to 1e-12.
+    cfg = model_config({"family": family, "hidden.multiplicity": 2, "hidden.lmax": 2,
+                        "layers": 2, "radial.count": 4, "width": 6})
+    torch.manual_seed(1)
+    fused = build_model(cfg, FIELDS, "anisotropy")
+    assert any(isinstance(m, FusedLinear) for m in fused.modules())
+    fused(random_graph(FIELDS, 10, seed=5))  # float32 casts made and kept
+    with default_dtype(torch.float64):
+        plain = build_model(cfg, FIELDS, "anisotropy", kernels="e3nn")
+    graph = random_graph(FIELDS, 10, seed=5, dtype=torch.float64)
+    with exact_float64(fused):  # the gate's conversion (e3nn's 3j buffers rebuilt exactly)
+        plain.load_state_dict(fused.state_dict())
+        torch.testing.assert_close(fused(graph), plain(graph), rtol=0, atol=1e-12)
