@@ -18,6 +18,12 @@ from searcher.testing import make_fields, model_config
 FIELDS = make_fields()
 
 
+def small_config(family: str) -> dict:
+    """Two layers at lmax 2, multiplicity 2: every kind of fused module, in a few ms."""
+    return model_config({"family": family, "hidden.multiplicity": 2, "hidden.lmax": 2,
+                         "layers": 2, "radial.count": 4, "width": 6})
+
+
 def _uvu(hidden: str, lmax: int, shared: bool) -> o3.TensorProduct:
     """A NequIP-style depthwise product (one output block per path), as the gated family."""
     hidden, sh = o3.Irreps(hidden), o3.Irreps.spherical_harmonics(lmax)
@@ -153,8 +159,7 @@ def test_unsupported_products_keep_e3nn_code():
 @pytest.mark.parametrize("family", ["steerable", "gated"])
 def test_fused_model_equals_plain_e3nn_model(family):
     # Reference: the same architecture built on e3nn's code, loaded with the same state dict.
-    cfg = model_config({"family": family, "hidden.multiplicity": 2, "hidden.lmax": 2,
-                        "layers": 2, "radial.count": 4, "width": 6})
+    cfg = small_config(family)
     torch.manual_seed(0)
     fused = build_model(cfg, FIELDS, "anisotropy")
     plain = build_model(cfg, FIELDS, "anisotropy", kernels="e3nn")
@@ -221,8 +226,7 @@ def test_fused_model_run_in_float32_then_converted_stays_exact(family):
     # The trial's order of events: a model runs in float32 (its kernels keep float32 casts of
     # their constants), then the equivariance gate converts it to float64.  The float64
     # evaluation must use the float64 originals: equal to e3nn's code in float64 to 1e-12.
-    cfg = model_config({"family": family, "hidden.multiplicity": 2, "hidden.lmax": 2,
-                        "layers": 2, "radial.count": 4, "width": 6})
+    cfg = small_config(family)
     torch.manual_seed(1)
     fused = build_model(cfg, FIELDS, "anisotropy")
     assert any(isinstance(m, FusedLinear) for m in fused.modules())

@@ -11,7 +11,8 @@ from e3nn import o3
 from searcher.models import build_model, default_dtype, random_graph
 from searcher.models._fused_gate import FusedGate, fuse_gate
 from searcher.models._irreps import make_gate
-from searcher.testing import make_fields, model_config
+from searcher.testing import make_fields
+from tests.models.test_fused import small_config
 
 FIELDS = make_fields()
 
@@ -67,8 +68,7 @@ def test_float32_agrees_with_float64():
 
 @pytest.mark.parametrize("family", ["steerable", "gated"])
 def test_fused_builds_switch_every_gate_and_keep_e3nn_state(family):
-    cfg = model_config({"family": family, "hidden.multiplicity": 2, "hidden.lmax": 2,
-                        "layers": 2, "radial.count": 4, "width": 6})
+    cfg = small_config(family)
     torch.manual_seed(0)
     with default_dtype(torch.float64):
         fused = build_model(cfg, FIELDS, "anisotropy")
