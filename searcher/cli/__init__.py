@@ -11,6 +11,7 @@ import importlib
 import sys
 
 from searcher.errors import UserError
+from searcher.options import kernel_choice
 
 __all__ = ["main"]
 
@@ -53,8 +54,6 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 2
     try:
-        from searcher.options import kernel_choice
-
         kernel_choice()  # a mistyped SEARCHER_KERNELS stops here, not as a fallback line
         return int(args.handler(args) or 0)
     except UserError as err:

@@ -543,20 +543,28 @@ void blocks_backward(const Plan& plan, const std::vector<Path>& paths, const T* 
   }
 }
 
-void check_args(const torch::Tensor& x1, const torch::Tensor& x2, const torch::Tensor& w,
-                const torch::Tensor& alpha, const torch::Tensor& nzi, const torch::Tensor& nzc,
-                bool shared) {
-  TORCH_CHECK(x1.dim() == 2 && x2.dim() == 2 && x1.size(0) == x2.size(0),
-              "x1 and x2 must be [Z, D] with one row per sample");
+// What every entry point needs of its inputs whatever their row counts: contiguous CPU
+// tensors of one floating dtype and int64 3j indices.
+void check_inputs(const torch::Tensor& x1, const torch::Tensor& x2, const torch::Tensor& w,
+                  const torch::Tensor& alpha, const torch::Tensor& nzi,
+                  const torch::Tensor& nzc) {
   TORCH_CHECK(x1.is_contiguous() && x2.is_contiguous() && w.is_contiguous(),
               "inputs must be contiguous");
   TORCH_CHECK(x1.dtype() == x2.dtype() && x1.dtype() == w.dtype() &&
                   x1.dtype() == alpha.dtype() && x1.dtype() == nzc.dtype(),
               "every floating input must share one dtype");
   TORCH_CHECK(nzi.dtype() == torch::kInt64 && nzi.is_contiguous(), "nzi must be int64");
+  TORCH_CHECK(x1.device().is_cpu(), "the compiled kernel runs on the CPU");
+}
+
+void check_args(const torch::Tensor& x1, const torch::Tensor& x2, const torch::Tensor& w,
+                const torch::Tensor& alpha, const torch::Tensor& nzi, const torch::Tensor& nzc,
+                bool shared) {
+  TORCH_CHECK(x1.dim() == 2 && x2.dim() == 2 && x1.size(0) == x2.size(0),
+              "x1 and x2 must be [Z, D] with one row per sample");
+  check_inputs(x1, x2, w, alpha, nzi, nzc);
   TORCH_CHECK(shared ? w.dim() == 1 : (w.dim() == 2 && w.size(0) == x1.size(0)),
               "weights must be [W] (shared) or [Z, W]");
-  TORCH_CHECK(x1.device().is_cpu(), "the compiled kernel runs on the CPU");
 }
 
 }  // namespace
@@ -645,11 +653,7 @@ torch::Tensor tp_scatter_forward(torch::Tensor x1, torch::Tensor x2, torch::Tens
                                  torch::Tensor nzc, int64_t dim_out) {
   TORCH_CHECK(x1.dim() == 2 && x2.dim() == 2 && w.dim() == 2 && w.size(0) == x2.size(0),
               "x1 [N, D1], x2 [E, D2] and per-edge weights [E, W] expected");
-  TORCH_CHECK(x1.is_contiguous() && x2.is_contiguous() && w.is_contiguous(),
-              "inputs must be contiguous");
-  TORCH_CHECK(x1.dtype() == x2.dtype() && x1.dtype() == w.dtype() &&
-                  x1.dtype() == alpha.dtype() && x1.dtype() == nzc.dtype(),
-              "every floating input must share one dtype");
+  check_inputs(x1, x2, w, alpha, nzi, nzc);
   check_edges(x1, x2, src, dst, n_out);
   auto table = read_paths(paths);
   Plan plan = make_plan(table, false);
@@ -672,6 +676,7 @@ std::vector<torch::Tensor> tp_scatter_backward(torch::Tensor g, torch::Tensor x1
                                                torch::Tensor nzi, torch::Tensor nzc,
                                                bool need1, bool need2, bool needw) {
   TORCH_CHECK(g.is_contiguous() && g.dtype() == x1.dtype(), "bad output gradient");
+  check_inputs(x1, x2, w, alpha, nzi, nzc);
   check_edge_shapes(x2, src, dst);
   auto table = read_paths(paths);
   Plan plan = make_plan(table, false);
