@@ -4,17 +4,21 @@ Building a model is most of a small trial's fixed cost, and almost all of it is 
 that depends only on the module's structure, never on its weights:
 
 * every ``o3.TensorProduct`` generates its forward code with torch.fx and then optimises the
-  einsum contraction order with opt_einsum_fx (about three quarters of a build on the demo);
+  einsum contraction order with opt_einsum_fx (about three quarters of a build on the demo),
+  and builds a placeholder module for its ``right`` method (or its code, when asked);
+* every gate's ``nn.Extract`` traces and compiles its split with torch.fx;
 * every ``nn.normalize2mom`` (inside each gate and activation) estimates its activation's
   second moment from a million normal samples (about a fifth).
 
 A sweep builds the same structures again and again (the layers of one model share them, and
 trials redraw the same irreps), so both results are kept per structure:
 
-* the generated code of tensor products and of ``o3.Linear``: tensor products through
-  e3nn's own extension point, the ordered list of codegen providers
-  (``_CODEGEN_PROVIDERS_LEFT_RIGHT``, ours first), linears by wrapping
-  ``e3nn.o3._linear._codegen_linear``.  On a miss e3nn generates as usual; every module
+* the generated code of tensor products, of ``o3.Linear`` and of ``nn.Extract``: tensor
+  products through e3nn's own extension points, the ordered lists of codegen providers
+  (``_CODEGEN_PROVIDERS_LEFT_RIGHT`` and ``_CODEGEN_PROVIDERS_RIGHT``, ours first; the
+  placeholder by asking for the right code, :func:`_tensor_product_init`), linears
+  by wrapping ``e3nn.o3._linear._codegen_linear``, extracts by wrapping
+  ``Extract.__init__``.  On a miss e3nn generates as usual; every module
   then gets a *sibling* of the stored graph module (:func:`_sibling`: same generated
   forward, its own containers and buffer copies, so no two modules share a tensor);
 * the moment through ``e3nn.math._normalize_activation.moment``, keyed by the function, the
@@ -31,6 +35,7 @@ idempotent and runs when ``searcher.models`` is imported.
 from __future__ import annotations
 
 import copy
+import inspect
 import threading
 from collections import OrderedDict
 from contextlib import contextmanager
@@ -51,6 +56,7 @@ _PLANS: OrderedDict = OrderedDict()
 _COUNTS = {"graph_hits": 0, "graph_misses": 0, "moment_hits": 0, "moment_misses": 0}
 _STATE: dict = {}
 _LEAN = ThreadFlag()
+_NO_RIGHT = ThreadFlag()
 
 
 def _remember(store: OrderedDict, key, value) -> None:
@@ -113,6 +119,77 @@ def _left_right(irreps_in1, irreps_in2, irreps_out, instructions, shared_weights
     return _lookup(key, lambda: _STATE["codegen"](
         irreps_in1, irreps_in2, irreps_out, instructions, shared_weights, specialized_code,
         optimize_einsums))
+
+
+def _right(irreps_in1, irreps_in2, irreps_out, instructions, shared_weights=False,
+           specialized_code=True, optimize_einsums=True):
+    """e3nn's codegen of a tensor product's ``right`` method, stored per structure.
+
+    Inside :func:`_tensor_product_init` for a product built without ``compile_right`` (all of
+    ours) it gives e3nn's placeholder module instead, also stored: e3nn builds and compiles
+    that placeholder on every construction."""
+    if _NO_RIGHT.active:
+        return _lookup(("no-right",), _right_placeholder)
+    key = ("right", str(irreps_in1), str(irreps_in2), str(irreps_out), tuple(instructions),
+           bool(shared_weights), bool(specialized_code), bool(optimize_einsums),
+           torch.get_default_dtype())
+    return _lookup(key, lambda: _STATE["right"](
+        irreps_in1, irreps_in2, irreps_out, instructions, shared_weights, specialized_code,
+        optimize_einsums))
+
+
+def _right_placeholder() -> fx.GraphModule:
+    # e3nn's own placeholder for an uncompiled ``right`` (o3.TensorProduct.__init__): it
+    # returns its input and must not be empty (an empty graph fails to unpickle).
+    graph = fx.Graph()
+    x2 = graph.placeholder("x2", torch.Tensor)
+    graph.placeholder("w", torch.Tensor)
+    graph.output(x2)
+    return fx.GraphModule(torch.nn.Module(), graph, class_name="tp_forward")
+
+
+def _tensor_product_init(self, *args, **kwargs):
+    """``o3.TensorProduct.__init__`` with its ``right`` placeholder taken from the store.
+
+    e3nn compiles the right method only on request (``compile_right``, default False) and
+    otherwise builds a placeholder graph module; here the request always reaches the provider
+    list, which answers with the stored placeholder when the caller did not ask."""
+    bound = _STATE["tp_signature"].bind(self, *args, **kwargs)
+    if bound.arguments.get("compile_right", False):
+        return _STATE["tp_init"](*bound.args, **bound.kwargs)
+    bound.arguments["compile_right"] = True
+    with _NO_RIGHT.on():
+        _STATE["tp_init"](*bound.args, **bound.kwargs)
+    self._did_compile_right = False
+    return None
+
+
+def _extract_init(self, irreps_in, irreps_outs, instructions, squeeze_out: bool = False):
+    """``e3nn.nn.Extract.__init__`` with its traced code stored per structure.
+
+    Every gate builds an ``Extract`` (its scalar/gate/gated split), which traces a torch.fx
+    graph and compiles it.  On a hit the module gets e3nn's attributes and a sibling of the
+    stored graph module (an ``Extract`` owns no buffers or parameters)."""
+    from e3nn import o3
+
+    irreps_in = o3.Irreps(irreps_in)
+    outs = tuple(o3.Irreps(irreps) for irreps in irreps_outs)
+    key = ("extract", str(irreps_in), tuple(str(o) for o in outs),
+           tuple(tuple(ins) for ins in instructions), bool(squeeze_out))
+    with _LOCK:
+        template = _GRAPHS.get(key)
+        if template is not None:
+            _GRAPHS.move_to_end(key)
+            _COUNTS["graph_hits"] += 1
+    if template is None:
+        _STATE["extract"](self, irreps_in, outs, instructions, squeeze_out)
+        with _LOCK:
+            _COUNTS["graph_misses"] += 1
+            _remember(_GRAPHS, key, _sibling(self._compiled_forward))
+        return
+    torch.nn.Module.__init__(self)
+    self.irreps_in, self.irreps_outs, self.instructions = irreps_in, outs, instructions
+    self._codegen_register({"_compiled_forward": _sibling(template)})
 
 
 def _linear(irreps_in, irreps_out, instructions, f_in=None, f_out=None,
@@ -212,7 +289,9 @@ def install() -> None:
     import e3nn.math._normalize_activation as norm_mod
     import e3nn.o3._linear as linear_mod
     import e3nn.o3._tensor_product._tensor_product as tp_mod
-    from e3nn.o3._tensor_product._codegen import codegen_tensor_product_left_right
+    from e3nn.nn._extract import Extract
+    from e3nn.o3._tensor_product._codegen import (codegen_tensor_product_left_right,
+                                                  codegen_tensor_product_right)
 
     with _LOCK:
         if _STATE:
@@ -220,7 +299,14 @@ def install() -> None:
         _STATE["codegen"] = codegen_tensor_product_left_right
         _STATE["moment"] = norm_mod.moment
         _STATE["linear"] = linear_mod._codegen_linear
+        _STATE["right"] = codegen_tensor_product_right
+        _STATE["extract"] = Extract.__init__
+        _STATE["tp_init"] = tp_mod.TensorProduct.__init__
+        _STATE["tp_signature"] = inspect.signature(tp_mod.TensorProduct.__init__)
         tp_mod._CODEGEN_PROVIDERS_LEFT_RIGHT.insert(0, _left_right)
+        tp_mod._CODEGEN_PROVIDERS_RIGHT.insert(0, _right)
+        Extract.__init__ = _extract_init
+        tp_mod.TensorProduct.__init__ = _tensor_product_init
         norm_mod.moment = _moment
         linear_mod._codegen_linear = _linear
 

@@ -4,7 +4,10 @@ from __future__ import annotations
 import e3nn.math._normalize_activation as norm_mod
 import e3nn.o3._tensor_product._tensor_product as tp_mod
 import torch
-from e3nn.o3._tensor_product._codegen import codegen_tensor_product_left_right
+from e3nn.nn._extract import Extract
+from e3nn.o3._tensor_product._codegen import (codegen_tensor_product_left_right,
+                                              codegen_tensor_product_right)
+from torch import fx
 
 from searcher.models import build_model, random_graph
 from searcher.models import _build_cache
@@ -15,9 +18,9 @@ CFG = model_config({"family": "steerable", "hidden.multiplicity": 2, "hidden.lma
                     "layers": 2, "radial.count": 4, "width": 6, "norm": "batch"})
 
 
-def _build_and_run(cfg):
+def _build_and_run(cfg, kernels="fused"):
     torch.manual_seed(0)
-    model = build_model(cfg, FIELDS, "anisotropy")
+    model = build_model(cfg, FIELDS, "anisotropy", kernels=kernels)
     graph = random_graph(FIELDS, 10, seed=4)
     return model, model(graph)
 
@@ -31,6 +34,9 @@ def test_cached_build_is_identical_to_e3nn_uncached(monkeypatch):
     assert info["graph_hits"] > 0 and info["moment_hits"] > 0
     monkeypatch.setattr(tp_mod, "_CODEGEN_PROVIDERS_LEFT_RIGHT",
                         [codegen_tensor_product_left_right])
+    monkeypatch.setattr(tp_mod, "_CODEGEN_PROVIDERS_RIGHT", [codegen_tensor_product_right])
+    monkeypatch.setattr(Extract, "__init__", _build_cache._STATE["extract"])
+    monkeypatch.setattr(tp_mod.TensorProduct, "__init__", _build_cache._STATE["tp_init"])
     monkeypatch.setattr(norm_mod, "moment", _build_cache._STATE["moment"])
     ref_model, ref = _build_and_run(CFG)
     assert torch.equal(cold, ref) and torch.equal(warm, ref)
@@ -67,17 +73,26 @@ def test_cached_models_copy_and_pickle():
     assert torch.equal(pickle.loads(pickle.dumps(model))(graph), out)
 
 
-def test_a_warm_build_generates_no_e3nn_code():
+def test_a_warm_build_generates_no_e3nn_code(monkeypatch):
     # A later trial of an architecture the worker has built (the warm trial of the overhead
-    # figure) must not run e3nn's code generation or moment estimate at all: every lookup hits.
-    for family in ("steerable", "gated"):
+    # figure) must not run e3nn's code generation or moment estimate at all: every lookup hits,
+    # and no torch.fx graph is compiled to Python (e3nn compiles every generated module).
+    compiled = []
+    recompile = fx.GraphModule.recompile
+    monkeypatch.setattr(fx.GraphModule, "recompile",
+                        lambda self: compiled.append(1) or recompile(self))
+    for family, kernels in (("steerable", "e3nn"), ("gated", "e3nn"), ("steerable", "fused"),
+                            ("gated", "fused")):
         cfg = model_config({"family": family, "hidden.multiplicity": 2, "hidden.lmax": 2,
                             "layers": 2, "radial.count": 4, "width": 6})
         _build_cache.clear()
-        _build_and_run(cfg)
+        _build_and_run(cfg, kernels)
         cold = _build_cache.cache_info()
-        _build_and_run(cfg)
+        assert compiled, family  # the cold build did generate, so the counter sees it
+        compiled.clear()
+        _build_and_run(cfg, kernels)
         warm = _build_cache.cache_info()
+        assert not compiled, (family, kernels, len(compiled))
         assert warm["graph_misses"] == cold["graph_misses"], family
         assert warm["moment_misses"] == cold["moment_misses"], family
         assert warm["graph_hits"] + warm["moment_hits"] > cold["graph_hits"] + cold["moment_hits"]
