@@ -1,15 +1,17 @@
 """Graphs collated once into fixed batches, with the model's edge geometry cached.
 
-Collating (``Batch.from_data_list``) and computing spherical harmonics and radial bases cost
-as much as a small model's forward pass, so a training run does both once: the training
-graphs are split into fixed batches by one seeded permutation, and each epoch only shuffles
-the *order* of those batches (with the run's own ``torch.Generator``).  Batch membership is
-therefore fixed for a run; a different seed gives different batches.
+Collating (:func:`collate_graphs`: PyG's ``Batch.from_data_list``, built directly) and
+computing spherical harmonics and radial bases cost as much as a small model's forward
+pass, so a training run does both once: the training graphs are split into fixed batches by
+one seeded permutation, and each epoch only shuffles the *order* of those batches (with the
+run's own ``torch.Generator``).  Batch membership is therefore fixed for a run; a different
+seed gives different batches.
 """
 from __future__ import annotations
 
 import torch
-from torch_geometric.data import Batch
+
+from ._collate import collate_graphs, flat_plan
 
 __all__ = ["collate", "TrainBatches"]
 
@@ -37,8 +39,15 @@ def collate(model: torch.nn.Module, graphs, batch_size: int, *, device="cpu",
     """
     idx = list(range(len(graphs))) if order is None else [int(i) for i in order]
     size = max(1, int(batch_size))
-    return [_with_geometry(model, Batch.from_data_list([graphs[i] for i in idx[k:k + size]])
-                           .to(device)) for k in range(0, len(idx), size)]
+    plan = flat_plan(list(graphs))  # checked once for every batch
+    # ``Batch.to`` walks and re-sets every attribute even when nothing moves
+    move = bool(graphs) and any(v.device != torch.device(device) for v in graphs[0].values()
+                                if isinstance(v, torch.Tensor))
+    out = []
+    for k in range(0, len(idx), size):
+        batch = collate_graphs([graphs[i] for i in idx[k:k + size]], plan)
+        out.append(_with_geometry(model, batch.to(device) if move else batch))
+    return out
 
 
 class TrainBatches:
