@@ -28,8 +28,8 @@ re-queued on resume), everywhere.  Budgets count every outcome except ``interrup
 
 MLflow tags (:data:`TAGS`): a study's parent run carries ``role = study``, ``study`` (its name),
 ``study_hash`` and ``summary``; a trial's child run ``role = trial`` and ``trial`` (its
-number), and when it ends ``outcome``, ``reason`` and ``pruned_at``.  Every tag name is
-prefixed ``searcher.``.
+number), and when it ends ``outcome``, ``reason``, ``pruned_at`` and ``config`` (the resolved
+configuration as YAML).  Every tag name is prefixed ``searcher.``.
 """
 from __future__ import annotations
 
@@ -47,7 +47,7 @@ STATE_OUTCOME = {TrialState.COMPLETE: "completed", TrialState.PRUNED: "pruned",
                  TrialState.FAIL: "interrupted"}
 
 TAGS = {name: f"searcher.{name}" for name in ("role", "study", "study_hash", "summary", "trial",
-                                              "outcome", "reason", "pruned_at")}
+                                              "outcome", "reason", "pruned_at", "config")}
 STUDY_ROLE, TRIAL_ROLE = "study", "trial"
 
 

@@ -48,7 +48,6 @@ class DossierTracker:
         rows = [(0, {k: v for k, v in values.items() if math.isfinite(v)})]
         rows += [(epoch, {"val_loss": v}) for epoch, v in enumerate(rec["curve"], start=1)
                  if math.isfinite(v)]
-        t.log_metrics(run_id, rows)
         outcome = rec["status"] if rec["status"] in ("diverged", "timeout") else "completed"
-        t.finish(run_id, outcome=outcome, reason=rec["reason"], config=config)
+        t.finish(run_id, outcome=outcome, reason=rec["reason"], config=config, rows=rows)
         return run_id

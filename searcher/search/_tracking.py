@@ -3,9 +3,16 @@
 Parent: tags ``searcher.role=study`` and ``searcher.study=<name>`` (found again on resume).
 Child: tags ``mlflow.parentRunId``, ``searcher.role=trial``, ``searcher.trial=<number>``;
 params = the flattened resolved config (dotted keys, values as text, at most 500 characters,
-passwords masked); metrics per epoch (step = epoch) sent with ``log_batch`` (at most 1000 items
-a call); at the end tags ``searcher.outcome``, ``searcher.reason``, ``searcher.pruned_at`` and the
-config as ``config.yaml``.  The tag names are the contract's (:data:`searcher.outcomes.TAGS`).
+passwords masked); metrics per epoch (step = epoch); at the end tags ``searcher.outcome``,
+``searcher.reason``, ``searcher.pruned_at`` and the config as YAML in ``searcher.config`` (as
+the artifact ``config.yaml`` when it is longer than a tag may be).  The tag names are the
+contract's (:data:`searcher.outcomes.TAGS`).
+
+Writes are batched: a run is created with its tags, and its params, metrics and end tags
+go in one ``log_batch`` when it finishes (split only at MLflow's limits per call), then it is
+closed.  Every MLflow call costs 3-6 ms of CPU on sqlite whatever it carries, so a small trial
+makes three calls, not seven.  A caller that flushes curves during a long run (the trial
+runner does every few seconds) sends the params with the first flush.
 
 Several workers (and several ``searcher run`` processes on one machine) write one sqlite file
 at once, so every call is retried with backoff when sqlite says the database is locked.  Any other tracking failure (a bad URI, a server that is
@@ -32,9 +39,10 @@ from ._urls import mask_url, public_config, tracking_uri
 __all__ = ["Tracker", "TrackingInfo", "prepare_tracking", "find_study_run", "flatten"]
 
 log = logging.getLogger("searcher")
-_MAX_ITEMS = 1000
-_MAX_PARAMS = 100
+_MAX_ITEMS = 1000       # MLflow's limits per log_batch: entities in all,
+_MAX_PARAMS = 100       # params and tags together
 _PARAM_CHARS = 500
+_TAG_CHARS = 8000       # MLflow's longest tag value
 _TRIES = 10
 
 
@@ -75,6 +83,7 @@ class Tracker:
     def __init__(self, info: TrackingInfo | None) -> None:
         self.info = info
         self.client = None
+        self._unsent: dict = {}  # run id -> params not yet written
         if info is not None:
             _quiet()
             try:
@@ -111,8 +120,9 @@ class Tracker:
         return None
 
     def start_run(self, run_name: str, tags: dict, config: dict) -> str:
-        """Create a child run of the study run with ``tags`` and the config as params;
-        returns its run id ("" when tracking is off)."""
+        """Create a child run of the study run with ``tags``; the config's params go with its
+        first batch of metrics or with :meth:`finish`.  Returns its run id ("" when
+        tracking is off)."""
         if not self.on:
             return ""
         info = self.info
@@ -122,9 +132,8 @@ class Tracker:
             return ""
         from mlflow.entities import Param
 
-        params = [Param(k, v) for k, v in flatten(public_config(config)).items()]
-        for k in range(0, len(params), _MAX_PARAMS):
-            self.call("log_batch", run.info.run_id, params=params[k:k + _MAX_PARAMS])
+        self._unsent[run.info.run_id] = [Param(k, v) for k, v in
+                                         flatten(public_config(config)).items()]
         return run.info.run_id
 
     def start_trial(self, number: int, config: dict) -> str:
@@ -132,34 +141,62 @@ class Tracker:
         return self.start_run(f"trial-{number:04d}", {TAGS["role"]: TRIAL_ROLE,
                                                       TAGS["trial"]: str(number)}, config)
 
-    def log_metrics(self, run_id: str, rows: list[tuple[int, dict]]) -> None:
-        """Send ``[(epoch, {name: value})]`` in batches of at most 1000 items."""
-        if not (self.on and run_id and rows):
-            return
-        from mlflow.entities import Metric
+    def _send(self, run_id: str, rows=(), tags: dict | None = None) -> None:
+        """One ``log_batch`` with the run's unsent params, ``rows`` of metrics and ``tags``,
+        split at MLflow's limits."""
+        from mlflow.entities import Metric, RunTag
 
         now = int(time.time() * 1000)
-        items = [Metric(k, float(v), now, int(epoch)) for epoch, m in rows for k, v in m.items()]
-        for k in range(0, len(items), _MAX_ITEMS):
-            self.call("log_batch", run_id, metrics=items[k:k + _MAX_ITEMS])
+        params = self._unsent.pop(run_id, [])
+        metrics = [Metric(k, float(v), now, int(epoch)) for epoch, m in rows for k, v in m.items()]
+        marks = [RunTag(k, v) for k, v in (tags or {}).items()]
+        for p, m, t in _chunks(params, metrics, marks):
+            self.call("log_batch", run_id, metrics=m, params=p, tags=t)
+
+    def log_metrics(self, run_id: str, rows: list[tuple[int, dict]]) -> None:
+        """Send ``[(epoch, {name: value})]`` now (with the run's params, the first time)."""
+        if not (self.on and run_id and rows):
+            return
+        self._send(run_id, rows)
 
     def finish(self, run_id: str, *, outcome: str, reason: str, config: dict | None,
-               pruned_at: int | None = None, extra_tags: dict | None = None) -> None:
-        """Tag the outcome, attach the config and close the run."""
+               pruned_at: int | None = None, extra_tags: dict | None = None,
+               rows: list[tuple[int, dict]] | None = None) -> None:
+        """Write what is left (params, ``rows`` of metrics, the outcome tags and the config)
+        in one batch and close the run."""
         if not (self.on and run_id):
+            self._unsent.pop(run_id, None)
             return
-        from mlflow.entities import RunTag
-
         tags = {TAGS["outcome"]: outcome, TAGS["reason"]: mask_url(reason)[:5000]}
         if pruned_at is not None:
             tags[TAGS["pruned_at"]] = str(pruned_at)
         tags.update(extra_tags or {})
-        self.call("log_batch", run_id, tags=[RunTag(k, v) for k, v in tags.items()])
-        if config is not None:
-            self.call("log_text", run_id, yaml.safe_dump(public_config(config), sort_keys=False),
-                      "config.yaml")
+        text = (yaml.safe_dump(public_config(config), sort_keys=False)
+                if config is not None else "")
+        if text and len(text) <= _TAG_CHARS:
+            tags[TAGS["config"]] = text
+        self._send(run_id, rows or (), tags)
+        if text and len(text) > _TAG_CHARS:
+            self.call("log_text", run_id, text, "config.yaml")
         status = {"interrupted": "KILLED", "failed": "FAILED"}.get(outcome, "FINISHED")
         self.call("set_terminated", run_id, status=status)
+
+
+def _chunks(params: list, metrics: list, tags: list):
+    """``(params, metrics, tags)`` per ``log_batch`` call within MLflow's limits: at most
+    100 params and tags together and 1000 entities in all; tags once the params are out."""
+    params, metrics, tags = list(params), list(metrics), list(tags)
+    while True:
+        p = params[:_MAX_PARAMS]
+        del params[:len(p)]
+        t = tags[:_MAX_PARAMS - len(p)] if not params else []
+        del tags[:len(t)]
+        m = metrics[:_MAX_ITEMS - len(p) - len(t)]
+        del metrics[:len(m)]
+        if p or m or t:
+            yield p, m, t
+        if not (params or metrics or tags):
+            return
 
 
 def find_study_run(tracker: Tracker, experiment_id: str, study: str):

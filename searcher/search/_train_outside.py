@@ -80,9 +80,8 @@ def rerun_config(study, config: dict, tag: str) -> dict:
 
     _, result, _ = train_config(study, config, seed=int(config["training"]["seed"]),
                                 callback=keep)
-    tracker.log_metrics(run_id, rows)
     outcome = result.status if result.status in ("diverged", "timeout") else "completed"
-    tracker.finish(run_id, outcome=outcome, reason=result.reason, config=config)
+    tracker.finish(run_id, outcome=outcome, reason=result.reason, config=config, rows=rows)
     best = result.best_value if math.isfinite(result.best_value) else None
     return {"curve": list(result.curve), "best_value": best, "outcome": outcome,
             "epochs": result.epochs, "mlflow_run_id": run_id}

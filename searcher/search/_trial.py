@@ -97,16 +97,19 @@ class TrialRunner:
         self.should_stop, self.worker, self.on_start = should_stop, worker, on_start
         self.attrs = dict(attrs or {})
         self.search = study.fixed()["search"]
+        self.rows: list = []
 
     def _record(self, trial, run_id: str, outcome: str, reason: str, config, *,
-                pruned_at=None, **attrs) -> None:
+                pruned_at=None, rows=None, **attrs) -> None:
+        """Store the trial's end in its attributes; send the tracker the unsent metric
+        ``rows`` with the end tags in one batch."""
         attrs.update(outcome=outcome, reason=reason)
         if pruned_at is not None:
             attrs["pruned_at"] = int(pruned_at)
         for key, value in attrs.items():
             trial.set_user_attr(key, value)
         self.tracker.finish(run_id, outcome=outcome, reason=reason, config=config,
-                            pruned_at=pruned_at)
+                            pruned_at=pruned_at, rows=rows)
 
     def __call__(self, trial: optuna.Trial) -> float:
         self.on_start()
@@ -130,6 +133,7 @@ class TrialRunner:
             trial.set_user_attr(key, value)
         run_id = self.tracker.start_trial(trial.number, config)
         trial.set_user_attr("mlflow_run_id", run_id)
+        self.rows = []  # epochs' metrics the tracker has not been sent yet
         try:
             return self._train(trial, config, run_id, seed, cpu0)
         except (optuna.TrialPruned, TrialFailed):
@@ -141,7 +145,7 @@ class TrialRunner:
                 raise
             log.error("trial %d failed:\n%s", trial.number, traceback.format_exc())
             self._record(trial, run_id, "failed", f"{type(err).__name__}: {err}"[:2000], config,
-                         cpu_seconds=time.process_time() - cpu0)
+                         cpu_seconds=time.process_time() - cpu0, rows=self.rows)
             raise TrialFailed(str(err)) from None
 
     def _cost_stats(self, config: dict) -> dict:
@@ -185,7 +189,7 @@ class TrialRunner:
 
         state = {"why": "", "epoch": 0}
         last = int(config["training"]["epochs"])
-        pending: list = []
+        pending = self.rows
         flushed = [time.monotonic()]
 
         def callback(epoch: int, metrics: dict) -> bool:
@@ -206,10 +210,9 @@ class TrialRunner:
             return False
 
         result = fit(model, self.dataset, config, callback=callback)
-        self.tracker.log_metrics(run_id, pending)
         common = dict(best_value=result.best_value if math.isfinite(result.best_value)
                       else None, best_epoch=result.best_epoch, epochs=result.epochs,
-                      cpu_seconds=time.process_time() - cpu0)
+                      cpu_seconds=time.process_time() - cpu0, rows=pending)
         if result.status == "diverged":
             trial.set_constraint("stable", 1.0)
             self._record(trial, run_id, "diverged", result.reason, config, **common)
