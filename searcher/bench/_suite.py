@@ -174,8 +174,9 @@ def _headline(name: str, value) -> tuple[str, float | None]:
                 f"{value['tables_ms_max']:.2f}, {value['structures']} structures); "
                 f"{value['child_status']}", value["build_s"])
     if name == "worker_scaling":
-        return (f"{value['per_hour_2']:.0f} vs {value['per_hour_1']:.0f} trials/h",
-                value["ratio"])
+        return (f"{value['per_hour_2']:.0f} vs {value['per_hour_1']:.0f} trials/h steady "
+                f"(first start to last end {value['ratio_wall']:.2f}); this machine's "
+                f"ceiling for two processes {value['machine_ceiling']:.2f}", value["ratio"])
     if name == "overhead":
         return (f"cold pass {value['fraction_cold']:.2f}, warm pass "
                 f"{value['fraction_warm']:.2f}; {value['outside_s']:.2f} s outside of "

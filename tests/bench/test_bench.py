@@ -94,6 +94,7 @@ def test_sweep_figures(tmp_path):
                        only=("worker_scaling", "overhead"))
     scale, over = record["figures"]["worker_scaling"], record["figures"]["overhead"]
     assert scale["per_hour_1"] > 0 and scale["per_hour_2"] > 0  # derived: trials did finish
+    assert scale["ratio_wall"] > 0 and scale["machine_ceiling"] > 0  # derived: both ran
     # 2 configurations, each run once cold and once warm.
     assert over["trials"] == 4 and 0 <= over["fraction"] <= 1  # derived: 2 x (cold + warm); a share
     assert 0 <= over["fraction_warm"] <= 1 and 0 <= over["fraction_cold"] <= 1  # shares (derived)
@@ -116,3 +117,27 @@ def test_kernel_routes_figure(demo):
     (row,) = fig["rows"]
     assert fig["edges"] > 0 and row["fallback_us"] > 0 and row["inductor_us"] > 0
     assert row["inductor_warm_first_call_s"] < row["inductor_first_call_s"]
+
+
+def test_steady_rate_counts_each_worker_over_its_own_span():
+    # derived by hand: worker A runs 3 trials in 0-6 s (1800/h), worker B 2 trials in 1-5 s
+    # (1800/h) and then has nothing to take; the steady rate is 3600/h, the wall rate
+    # (5 trials over 0-6 s) 3000/h.
+    import datetime
+
+    import optuna
+
+    from searcher.bench._sweep import _per_hour, _steady_per_hour
+
+    t0 = datetime.datetime(2026, 1, 1)
+
+    def trial(pid, start, end):
+        made = optuna.trial.create_trial(value=0.0, user_attrs={"host": "h", "pid": pid,
+                                                                "worker": 0})
+        made.datetime_start = t0 + datetime.timedelta(seconds=start)
+        made.datetime_complete = t0 + datetime.timedelta(seconds=end)
+        return made
+
+    trials = [trial(1, 0, 2), trial(1, 2, 4), trial(1, 4, 6), trial(2, 1, 3), trial(2, 3, 5)]
+    assert _steady_per_hour(trials) == pytest.approx(3600.0)
+    assert _per_hour(trials) == pytest.approx(3000.0)
