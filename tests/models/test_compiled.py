@@ -176,3 +176,28 @@ def test_gathered_sum_equals_messages_then_aggregate(aggregate):
     plain.load_state_dict(fused.state_dict())
     graph = random_graph(fields, 10, seed=2, dtype=torch.float64)
     torch.testing.assert_close(fused(graph), plain(graph), rtol=0, atol=1e-12)
+
+
+def test_double_backward_through_the_compiled_kernel_raises():
+    # The kernel's backward is first order only (once_differentiable): asking for a second
+    # derivative (create_graph=True, as force-matching losses do) must raise, not return a
+    # silently wrong zero.  The PyTorch fallback is twice differentiable and is the route for
+    # such losses (torch's own rule for once_differentiable functions).
+    if kernel_module() is None:
+        pytest.skip(f"compiled kernel unavailable: {kernel_status()}")
+    from searcher.models._fused import fuse_products
+
+    torch.manual_seed(0)
+    with default_dtype(torch.float64):
+        tp = o3.FullyConnectedTensorProduct("2x0e+2x1o", "1x0e+1x1o", "2x0e+2x1o")
+    fuse_products(tp)
+    x1 = torch.randn(5, tp.irreps_in1.dim, dtype=torch.float64, requires_grad=True)
+    x2 = torch.randn(5, tp.irreps_in2.dim, dtype=torch.float64)
+    (g,) = torch.autograd.grad(tp(x1, x2).square().sum(), x1, create_graph=True)
+    with pytest.raises(RuntimeError, match="once_differentiable|twice"):
+        g.sum().backward()
+    with pytorch_kernels():
+        (g,) = torch.autograd.grad(tp(x1, x2).square().sum(), x1, create_graph=True)
+        (h,) = torch.autograd.grad(g.sum(), x1)
+    # derived: for f = |T(x1, x2)|^2 with T bilinear, d/dx1 of sum(df/dx1) is 2 T^T T 1: finite
+    assert torch.isfinite(h).all() and h.abs().sum() > 0
