@@ -53,6 +53,9 @@ def test_a_small_trial_makes_three_calls_and_everything_is_stored(tmp_path):
     assert run.data.tags[TAGS["outcome"]] == "completed"
     assert run.data.tags[TAGS["trial"]] == "3"
     assert yaml.safe_load(run.data.tags[TAGS["config"]]) == public_config(config)
+    # PyYAML's pure-Python emitter as the reference for the libyaml one the tracker uses
+    assert run.data.tags[TAGS["config"]] == yaml.safe_dump(public_config(config),
+                                                           sort_keys=False)
     history = client.get_metric_history(run_id, "m2")
     assert [(m.step, m.value) for m in history] == [(1, 1.2), (2, 2.2), (3, 3.2)]
 
