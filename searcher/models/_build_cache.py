@@ -23,9 +23,12 @@ trials redraw the same irreps), so both results are kept per structure:
   forward, its own containers and buffer copies, so no two modules share a tensor);
 * the moment through ``e3nn.math._normalize_activation.moment``, keyed by the function, the
   order, the dtype and the device. e3nn draws its samples from a generator seeded with 0, so
-  the value is a pure function of that key.
+  the value is a pure function of that key;
+* the rest of ``o3.TensorProduct.__init__`` (its normalised instructions, flags, dimensions
+  and output mask), keyed by its arguments, e3nn's optimisation defaults and the default
+  dtype; the internal weights are still drawn with e3nn's ``torch.randn`` call, in its order.
 
-Both give bit-identical modules to a build without them (tests compare the outputs), so
+All give bit-identical modules to a build without them (tests compare the outputs), so
 results stay deterministic for a given seed.  Within :func:`lean_codegen` (fused builds),
 products the fused kernels will run get a stand-in with e3nn's buffers and no code
 (:func:`_unfused_module`): their state dict is the same, nothing of e3nn's is generated.
@@ -53,7 +56,9 @@ _LOCK = threading.Lock()
 _GRAPHS: OrderedDict = OrderedDict()
 _MOMENTS: OrderedDict = OrderedDict()
 _PLANS: OrderedDict = OrderedDict()
-_COUNTS = {"graph_hits": 0, "graph_misses": 0, "moment_hits": 0, "moment_misses": 0}
+_INITS: OrderedDict = OrderedDict()
+_COUNTS = {"graph_hits": 0, "graph_misses": 0, "moment_hits": 0, "moment_misses": 0,
+           "init_hits": 0, "init_misses": 0}
 _STATE: dict = {}
 _LEAN = ThreadFlag()
 _NO_RIGHT = ThreadFlag()
@@ -149,19 +154,94 @@ def _right_placeholder() -> fx.GraphModule:
 
 
 def _tensor_product_init(self, *args, **kwargs):
-    """``o3.TensorProduct.__init__`` with its ``right`` placeholder taken from the store.
+    """``o3.TensorProduct.__init__``, its set-up stored per structure.
 
     e3nn compiles the right method only on request (``compile_right``, default False) and
     otherwise builds a placeholder graph module; here the request always reaches the provider
-    list, which answers with the stored placeholder when the caller did not ask."""
+    list, which answers with the stored placeholder when the caller did not ask.
+
+    The rest of e3nn's set-up is a pure function of the arguments, e3nn's optimisation
+    defaults and the default dtype, except the internal weights' ``torch.randn`` draw: its
+    normalised instruction list (a loop over instruction pairs, a third of a warm build on
+    the demo), dimensions, flags and output mask are kept after the first construction, and
+    a later one (:func:`_from_template`) sets them, registers code from the providers as
+    e3nn does, and draws the weights in e3nn's order with e3nn's call."""
     bound = _STATE["tp_signature"].bind(self, *args, **kwargs)
     if bound.arguments.get("compile_right", False):
         return _STATE["tp_init"](*bound.args, **bound.kwargs)
+    key = _init_key(bound.arguments)
+    with _LOCK:
+        template = _INITS.get(key) if key is not None else None
+        if template is not None:
+            _INITS.move_to_end(key)
+            _COUNTS["init_hits"] += 1
+    if template is not None:
+        _from_template(self, template)
+        return None
     bound.arguments["compile_right"] = True
     with _NO_RIGHT.on():
         _STATE["tp_init"](*bound.args, **bound.kwargs)
     self._did_compile_right = False
+    if key is not None:
+        with _LOCK:
+            _COUNTS["init_misses"] += 1
+            _remember(_INITS, key, _template_of(self))
     return None
+
+
+_MODULE_KEYS = frozenset(torch.nn.Module().__dict__) | {"__codegen__"}
+
+
+def _init_key(arguments: dict):
+    """The structure key of a ``TensorProduct.__init__`` call, None when it holds tensors
+    (variances given as tensors) or code that runs left-right placeholders."""
+    import e3nn
+    from e3nn import o3
+
+    args = dict(arguments)
+    args.pop("self", None)
+    if not args.get("compile_left_right", True):
+        return None
+    key = []
+    for name, value in sorted(args.items()):
+        if name.startswith("irreps_"):
+            value = str(o3.Irreps(value))
+        elif name == "instructions":
+            value = tuple(tuple(ins) for ins in value)
+        elif isinstance(value, (list, tuple)):
+            value = tuple(float(v) for v in value)
+        elif value is not None and not isinstance(value, (str, bool, int, float)):
+            return None
+        key.append((name, value))
+    defaults = tuple(sorted(e3nn.get_optimization_defaults().items()))
+    return ("tp-init", tuple(key), defaults, torch.get_default_dtype())
+
+
+def _template_of(tp) -> dict:
+    """What :func:`_from_template` needs of a freshly built product ``tp``."""
+    weight = tp._parameters.get("weight")
+    return {"attrs": {k: v for k, v in tp.__dict__.items() if k not in _MODULE_KEYS},
+            "weight": None if weight is None else weight.numel(),
+            "mask": tp._buffers["output_mask"].detach().clone()}
+
+
+def _from_template(tp, template: dict) -> None:
+    """The tail of e3nn's ``TensorProduct.__init__`` from stored set-up (same order of
+    registration, same random draw)."""
+    torch.nn.Module.__init__(tp)
+    tp.__dict__.update({k: copy.copy(v) if isinstance(v, (list, dict)) else v
+                        for k, v in template["attrs"].items()})
+    code = (tp.irreps_in1, tp.irreps_in2, tp.irreps_out, tp.instructions, tp.shared_weights,
+            tp._specialized_code, tp._optimize_einsums)
+    with _NO_RIGHT.on():
+        right = _right(*code)
+    tp._codegen_register({"_compiled_main_left_right": _left_right(*code),
+                          "_compiled_main_right": right})
+    if template["weight"] is not None:
+        tp.weight = torch.nn.Parameter(torch.randn(template["weight"]))
+    else:
+        tp.register_buffer("weight", torch.Tensor())
+    tp.register_buffer("output_mask", template["mask"].clone())
 
 
 def _extract_init(self, irreps_in, irreps_outs, instructions, squeeze_out: bool = False):
@@ -315,7 +395,7 @@ def cache_info() -> dict:
     """Hits and misses of both caches since the process started (or :func:`clear`)."""
     with _LOCK:
         return {**_COUNTS, "graphs": len(_GRAPHS), "moments": len(_MOMENTS),
-                "plans": len(_PLANS)}
+                "plans": len(_PLANS), "inits": len(_INITS)}
 
 
 def clear() -> None:
@@ -324,5 +404,6 @@ def clear() -> None:
         _GRAPHS.clear()
         _MOMENTS.clear()
         _PLANS.clear()
+        _INITS.clear()
         for key in _COUNTS:
             _COUNTS[key] = 0

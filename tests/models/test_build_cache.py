@@ -96,3 +96,56 @@ def test_a_warm_build_generates_no_e3nn_code(monkeypatch):
         assert warm["graph_misses"] == cold["graph_misses"], family
         assert warm["moment_misses"] == cold["moment_misses"], family
         assert warm["graph_hits"] + warm["moment_hits"] > cold["graph_hits"] + cold["moment_hits"]
+
+
+def _product_kinds():
+    from e3nn import o3
+
+    """(constructor, whether its set-up is stored)."""
+    yield (lambda: o3.FullyConnectedTensorProduct("2x0e+2x1o", "1x0e+1x1o+1x2e",
+                                                  "3x0e+2x1o+1x2e")), True
+    yield (lambda: o3.FullyConnectedTensorProduct("2x0e+1x1e", "1x1o", "2x1o+1x1e",
+                                                  irrep_normalization="norm",
+                                                  path_normalization="path")), True
+    yield (lambda: o3.TensorProduct("2x0e+2x1o", "1x0e+1x1o", "2x0e+2x1o",
+                                    [(0, 0, 0, "uvu", True), (1, 1, 0, "uvu", True),
+                                     (1, 0, 1, "uvu", True, 0.5)],
+                                    shared_weights=False, internal_weights=False)), True
+    yield (lambda: o3.ElementwiseTensorProduct("2x0e+2x1o", "2x0e+2x1e")), True
+    # variances given as a tensor have no key: e3nn builds it every time
+    yield (lambda: o3.FullyConnectedTensorProduct("2x0e", "1x0e", "1x0e",
+                                                  in1_var=torch.tensor([2.0]))), False
+
+
+def test_stored_product_set_up_equals_e3nns_construction(monkeypatch):
+    # Reference: e3nn's own TensorProduct.__init__.  The second construction of each
+    # structure comes from the stored set-up; it must give the same module (instructions and
+    # their normalisation, weights drawn from the same RNG state, buffers, outputs) and leave
+    # the RNG where e3nn leaves it, so a model's later draws do not move.
+    def snapshot(make):
+        torch.manual_seed(3)
+        tp = make()
+        after = torch.randn(4)
+        x1 = torch.randn(5, tp.irreps_in1.dim)
+        x2 = torch.randn(5, tp.irreps_in2.dim)
+        w = None if tp.shared_weights else torch.randn(5, tp.weight_numel)
+        out = tp(x1, x2) if w is None else tp(x1, x2, w)
+        return (tp.instructions, tp.weight_numel, str(tp), tp._profiling_str,
+                tp.internal_weights, tp.shared_weights, list(tp.state_dict().items()),
+                after, out)
+
+    def same(a, b):
+        assert a[:6] == b[:6]
+        assert [k for k, _ in a[6]] == [k for k, _ in b[6]]
+        assert all(torch.equal(x, y) for (_, x), (_, y) in zip(a[6], b[6]))
+        assert torch.equal(a[7], b[7]) and torch.equal(a[8], b[8])
+
+    for make, stored in _product_kinds():
+        _build_cache.clear()
+        first, second = snapshot(make), snapshot(make)
+        assert _build_cache.cache_info()["init_hits"] == int(stored)
+        with monkeypatch.context() as m:
+            m.setattr(tp_mod.TensorProduct, "__init__", _build_cache._STATE["tp_init"])
+            ref = snapshot(make)
+        same(first, ref)
+        same(second, ref)
