@@ -127,6 +127,8 @@ class TrialRunner:
         from searcher.spec import config_hash
 
         stored = public_config(config)
+        # "config" comes after host, pid, worker and the drawn parameters: the journal is
+        # synced to disk at it (_journal.SYNCED_ATTRS), so recovery can find a lost trial
         for key, value in (("config", stored), ("config_hash", config_hash(stored)),
                            ("study_hash", self.study.hash), ("data_hash", self.dataset.hash),
                            ("seed", seed)):
